@@ -1,0 +1,3 @@
+//! The `mirrorsite` command line: a thin shell over the library.
+
+fn main() {}

@@ -1,0 +1,1 @@
+//! Synthetic mirrored sessions with known truth.
