@@ -1,0 +1,34 @@
+//! Command definitions and dispatch. Each command lives in its own file and
+//! only parses arguments, calls the library and prints.
+
+use clap::{Parser, Subcommand};
+use std::process::ExitCode;
+
+mod inspect;
+mod simulate;
+
+/// Electrode-site selection for myoelectric hands from mirrored bilateral calibration sessions.
+#[derive(Debug, Parser)]
+#[command(name = "mirrorsite", version, about, long_about = None)]
+pub struct Cli {
+    /// What to do.
+    #[command(subcommand)]
+    pub command: Command,
+}
+
+/// The subcommands.
+#[derive(Debug, Subcommand)]
+pub enum Command {
+    /// Make a synthetic session with known truth from a scenario file.
+    Simulate(simulate::Args),
+    /// Read and check a session folder and summarise it.
+    Inspect(inspect::Args),
+}
+
+/// Runs one command.
+pub fn run(cli: Cli) -> mirrorsite::Result<ExitCode> {
+    match cli.command {
+        Command::Simulate(a) => simulate::run(a),
+        Command::Inspect(a) => inspect::run(a),
+    }
+}
