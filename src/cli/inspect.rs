@@ -25,9 +25,9 @@ pub fn run(args: Args) -> mirrorsite::Result<ExitCode> {
     if args.json {
         let text = serde_json::to_string_pretty(&summary)
             .map_err(|e| mirrorsite::Error::Analysis(e.to_string()))?;
-        println!("{text}");
+        super::print_out(&(text + "\n"))?;
     } else {
-        print!("{}", summary.to_text());
+        super::print_out(&summary.to_text())?;
     }
     Ok(ExitCode::SUCCESS)
 }

@@ -25,6 +25,18 @@ pub enum Command {
     Inspect(inspect::Args),
 }
 
+/// Writes `text` to stdout; a closed pipe (e.g. `| head`) is not an error.
+pub fn print_out(text: &str) -> mirrorsite::Result<()> {
+    use std::io::Write;
+    let mut out = std::io::stdout().lock();
+    match out.write_all(text.as_bytes()).and_then(|_| out.flush()) {
+        Err(e) if e.kind() != std::io::ErrorKind::BrokenPipe => {
+            Err(mirrorsite::Error::io("standard output", e))
+        }
+        _ => Ok(()),
+    }
+}
+
 /// Runs one command.
 pub fn run(cli: Cli) -> mirrorsite::Result<ExitCode> {
     match cli.command {
