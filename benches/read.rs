@@ -74,7 +74,11 @@ fn main() {
     let exe = std::env::current_exe().unwrap();
     let mut times = Vec::new();
     for _ in 0..3 {
-        let out = Command::new(&exe).arg("--read-child").arg(&dir).output().unwrap();
+        let out = Command::new(&exe)
+            .arg("--read-child")
+            .arg(&dir)
+            .output()
+            .unwrap();
         let line = String::from_utf8_lossy(&out.stdout).trim().to_string();
         let f: Vec<&str> = line.split_whitespace().collect();
         println!(
