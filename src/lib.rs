@@ -28,6 +28,7 @@
 pub mod error;
 pub mod output;
 pub mod report;
+pub mod select;
 pub mod session;
 pub mod simulate;
 
