@@ -46,14 +46,25 @@
 //! ```
 
 pub mod basis;
+pub mod compare;
+pub mod config;
+pub mod context;
 pub mod cv;
+pub mod data;
+pub mod dof;
 pub mod design;
 pub mod folds;
 pub mod gram;
 pub mod penalty;
 pub mod solver;
+pub mod stability;
+pub mod stages;
+pub mod tune;
 
 pub use basis::BSplineBasis;
+pub use config::SelectConfig;
+pub use data::DofData;
+pub use dof::{select_dof, DofSelection, Step};
 pub use cv::{cross_validate, CvPath};
 pub use design::{DesignSpec, FunctionalDesign};
 pub use folds::{block_folds, BlockFold, FoldGrams};
