@@ -25,8 +25,10 @@
 
 #![warn(missing_docs)]
 
+pub mod config;
 pub mod error;
 pub mod session;
+pub mod signal;
 pub mod simulate;
 
 pub use error::{Error, InputError, InputErrorKind, Result};

@@ -4,6 +4,7 @@
 use clap::{Parser, Subcommand};
 use std::process::ExitCode;
 
+mod config;
 mod inspect;
 mod simulate;
 
@@ -23,6 +24,8 @@ pub enum Command {
     Simulate(simulate::Args),
     /// Read and check a session folder and summarise it.
     Inspect(inspect::Args),
+    /// Print or check the analysis configuration file.
+    Config(config::Args),
 }
 
 /// Runs one command.
@@ -30,5 +33,6 @@ pub fn run(cli: Cli) -> mirrorsite::Result<ExitCode> {
     match cli.command {
         Command::Simulate(a) => simulate::run(a),
         Command::Inspect(a) => inspect::run(a),
+        Command::Config(a) => config::run(a),
     }
 }
