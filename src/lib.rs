@@ -27,6 +27,7 @@
 
 pub mod config;
 pub mod error;
+pub mod output;
 pub mod session;
 pub mod signal;
 pub mod simulate;
