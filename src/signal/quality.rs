@@ -146,13 +146,38 @@ impl Default for QualityConfig {
     }
 }
 
-/// Share of samples equal to the sample before (0 for fewer than 2 samples).
+/// Share of samples equal to the sample before, among the samples away from
+/// the channel's extreme values (repeats at the rails are clipping, counted
+/// by [`clipped_fraction`]); 1 for a constant channel, 0 for fewer than 2
+/// samples.
 pub fn stuck_fraction(x: &[f64]) -> f64 {
     if x.len() < 2 {
         return 0.0;
     }
-    let same = x.windows(2).filter(|w| w[0] == w[1]).count();
-    same as f64 / (x.len() - 1) as f64
+    let (lo, hi) = extremes(x);
+    if hi.is_nan() || lo.is_nan() || hi <= lo {
+        return 1.0;
+    }
+    let tol = 1e-6 * (hi - lo);
+    let inner = |v: f64| v < hi - tol && v > lo + tol;
+    let (mut same, mut total) = (0usize, 0usize);
+    for w in x.windows(2) {
+        if inner(w[1]) {
+            total += 1;
+            same += usize::from(w[0] == w[1]);
+        }
+    }
+    if total == 0 {
+        return 0.0;
+    }
+    same as f64 / total as f64
+}
+
+fn extremes(x: &[f64]) -> (f64, f64) {
+    x.iter()
+        .fold((f64::INFINITY, f64::NEG_INFINITY), |(a, b), &v| {
+            (a.min(v), b.max(v))
+        })
 }
 
 /// Share of samples lying in runs of at least `min_run` consecutive
@@ -162,11 +187,7 @@ pub fn clipped_fraction(x: &[f64], min_run: usize) -> f64 {
     if x.is_empty() {
         return 0.0;
     }
-    let (lo, hi) = x
-        .iter()
-        .fold((f64::INFINITY, f64::NEG_INFINITY), |(a, b), &v| {
-            (a.min(v), b.max(v))
-        });
+    let (lo, hi) = extremes(x);
     let tol = 1e-6 * (hi - lo);
     if hi.is_nan() || lo.is_nan() || hi <= lo {
         return 0.0;
@@ -447,6 +468,12 @@ mod tests {
     fn stuck_channel() {
         assert_eq!(stuck_fraction(&[1.0; 10]), 1.0);
         assert_eq!(stuck_fraction(&[1.0, 2.0, 3.0]), 0.0);
+        // Repeats at the rails are clipping, not a stuck channel.
+        assert_eq!(
+            stuck_fraction(&[0.0, 1.0, 1.0, 1.0, 0.5, 0.0, 0.0, 0.2]),
+            0.0
+        );
+        assert!((stuck_fraction(&[0.0, 0.5, 0.5, 0.5, 1.0]) - 2.0 / 3.0).abs() < 1e-12);
     }
 
     #[test]
