@@ -14,7 +14,8 @@
 //! other figures mean nothing without a signal.
 
 use super::envelope::percentile;
-use super::filter::{butter_sos, sosfiltfilt, Band};
+use super::envelope::rms;
+use super::filter::{butter_sos, sosfilt_inplace, sosfilt_zi, Band};
 use crate::session::Block;
 use serde::{Deserialize, Serialize};
 
@@ -222,32 +223,32 @@ pub fn clipped_fraction(x: &[f64], min_run: usize) -> f64 {
 
 /// Share of `window_s` windows in which the raw channel's 1–10 Hz content
 /// is a burst: its RMS exceeds `ratio` × the RMS of the conditioned signal
-/// `y` in the same window, and 3× the median low-frequency RMS. The low
-/// band is taken from 10 ms block means of the raw signal, band-passed
-/// (zero-phase, 2nd order Butterworth). `None` when the recording is too
-/// short for two windows.
+/// `y` in the same window, and 3× the median low-frequency RMS over the
+/// windows. The low band comes from a causal 2nd-order Butterworth
+/// band-pass of the raw signal at its own rate (no decimation, so no EMG
+/// aliases into the band; phase does not matter for an RMS). `None` when
+/// the recording is too short for two windows.
 pub fn motion_fraction(raw: &[f64], y: &[f64], fs: f64, window_s: f64, ratio: f64) -> Option<f64> {
-    let block = ((fs / 100.0).round() as usize).max(1);
-    let rate = fs / block as f64;
-    let means: Vec<f64> = raw
-        .chunks_exact(block)
-        .map(|c| c.iter().sum::<f64>() / block as f64)
+    let sos = butter_sos(2, Band::Bandpass(1.0, 10.0), fs).ok()?;
+    let mut lf = raw.to_vec();
+    // Start from the steady state of the first sample so an offset does not ring.
+    let mut zi: Vec<[f64; 2]> = sosfilt_zi(&sos)
+        .into_iter()
+        .map(|z| {
+            [
+                z[0] * raw.first().copied().unwrap_or(0.0),
+                z[1] * raw.first().copied().unwrap_or(0.0),
+            ]
+        })
         .collect();
-    let sos = butter_sos(2, Band::Bandpass(1.0, 10.0), rate).ok()?;
-    let lf = sosfiltfilt(&sos, &means).ok()?;
-    let per = ((window_s * rate).round() as usize).max(1);
-    let windows = lf.len() / per;
+    sosfilt_inplace(&sos, &mut lf, &mut zi);
+    let per = ((window_s * fs).round() as usize).max(1);
+    let windows = lf.len().min(y.len()) / per;
     if windows < 2 {
         return None;
     }
-    let mut lrms = Vec::with_capacity(windows);
-    let mut erms = Vec::with_capacity(windows);
-    for w in 0..windows {
-        let l = &lf[w * per..(w + 1) * per];
-        lrms.push((l.iter().map(|v| v * v).sum::<f64>() / per as f64).sqrt());
-        let e = &y[(w * per * block).min(y.len())..((w + 1) * per * block).min(y.len())];
-        erms.push(super::envelope::rms(e));
-    }
+    let lrms: Vec<f64> = lf.chunks_exact(per).take(windows).map(rms).collect();
+    let erms: Vec<f64> = y.chunks_exact(per).take(windows).map(rms).collect();
     let med = percentile(&lrms, 50.0);
     let bursts = lrms
         .iter()
