@@ -34,6 +34,7 @@
 mod complex;
 pub mod envelope;
 pub mod filter;
+pub mod lanes;
 pub mod mains;
 pub mod quality;
 mod settings;
@@ -113,6 +114,28 @@ struct CondPass {
     motion: Option<f64>,
 }
 
+/// Per-channel figures of pass 2 from the conditioned signals `ys`.
+fn finish(
+    ys: &[Vec<f64>],
+    envs: Vec<Vec<f64>>,
+    motion: Vec<Option<f64>>,
+    fs: f64,
+    seg: usize,
+    with_psd: bool,
+    qcfg: &QualityConfig,
+) -> Vec<CondPass> {
+    ys.iter()
+        .zip(envs)
+        .zip(motion)
+        .map(|((y, envelope), motion)| CondPass {
+            envelope,
+            rms_mv: envelope::rms(y),
+            residual: with_psd.then(|| spectrum::welch(y, fs, seg, qcfg.psd_segments)),
+            motion,
+        })
+        .collect()
+}
+
 /// Conditions every channel of `emg` (rows = sites, values in mV): see the
 /// module documentation for the steps. `sites` supplies `mvc_mv` by id
 /// (channels without a site entry are normalised by percentile); `blocks`
@@ -190,32 +213,58 @@ pub fn condition(
     let grid = envelope::feature_grid(emg.time_s[0], emg.time_s[n - 1], cfg.feature_rate_hz);
     let times = &emg.time_s;
 
-    // Pass 2: filter, envelope, residual spectrum, motion.
+    // Pass 2: filter, envelope, residual spectrum, motion; channels in
+    // groups of `lanes::LANES` filtered in lockstep.
+    let motion_sos = quality::motion_band(fs)?;
     let cond: Vec<CondPass> = rows
-        .par_iter()
-        .map(|x| -> Result<CondPass> {
-            let mut y = Vec::new();
-            filter::sosfiltfilt_into(&cascade, x, &mut y)?;
-            let rms_mv = envelope::rms(&y);
-            let residual = with_psd.then(|| spectrum::welch(&y, fs, seg, qcfg.psd_segments));
-            let motion =
-                quality::motion_fraction(x, &y, fs, qcfg.motion_window_s, qcfg.motion_ratio);
-            let env = match cfg.envelope {
+        .par_chunks(lanes::LANES)
+        .map(|chunk| -> Result<Vec<CondPass>> {
+            let xs: Vec<&[f64]> = chunk.iter().map(|c| c.as_ref()).collect();
+            let k = xs.len();
+            let mut ys = vec![Vec::new(); k];
+            lanes::sosfiltfilt_many(&cascade, &xs, &mut ys)?;
+            let mut lfs = vec![Vec::new(); k];
+            lanes::sosfilt_steady_many(&motion_sos, &xs, &mut lfs);
+            let motion: Vec<Option<f64>> = lfs
+                .iter()
+                .zip(&ys)
+                .map(|(lf, y)| {
+                    let (w, r) = (qcfg.motion_window_s, qcfg.motion_ratio);
+                    quality::motion_fraction_of_band(lf, y, fs, w, r)
+                })
+                .collect();
+            let envs: Vec<Vec<f64>> = match cfg.envelope {
                 EnvelopeKind::Lowpass => {
-                    let (mut scratch, mut out) = (Vec::new(), Vec::new());
-                    envelope::linear_envelope(&y, &lowpass, &mut scratch, &mut out)?;
-                    envelope::interpolate(times, &out, &grid)
+                    // Rectify into the low-band buffers, no longer needed.
+                    for (r, y) in lfs.iter_mut().zip(&ys) {
+                        r.clear();
+                        r.extend(y.iter().map(|v| v.abs()));
+                    }
+                    let refs: Vec<&[f64]> = lfs.iter().map(|r| r.as_slice()).collect();
+                    let mut outs = vec![Vec::new(); k];
+                    lanes::sosfiltfilt_many(&lowpass, &refs, &mut outs)?;
+                    outs.iter_mut()
+                        .map(|e| {
+                            // A low-pass of a non-negative signal can undershoot
+                            // zero after steep bursts; an amplitude cannot.
+                            for v in e.iter_mut() {
+                                *v = v.max(0.0);
+                            }
+                            envelope::interpolate(times, e, &grid)
+                        })
+                        .collect()
                 }
-                EnvelopeKind::Rms => envelope::moving_rms(times, &y, &grid, cfg.rms_window_s),
+                EnvelopeKind::Rms => ys
+                    .iter()
+                    .map(|y| envelope::moving_rms(times, y, &grid, cfg.rms_window_s))
+                    .collect(),
             };
-            Ok(CondPass {
-                envelope: env,
-                rms_mv,
-                residual,
-                motion,
-            })
+            Ok(finish(&ys, envs, motion, fs, seg, with_psd, qcfg))
         })
-        .collect::<Result<Vec<_>>>()?;
+        .collect::<Result<Vec<_>>>()?
+        .into_iter()
+        .flatten()
+        .collect();
 
     let mut rms_all: Vec<f64> = cond.iter().map(|c| c.rms_mv).collect();
     let median_rms = envelope::percentile(&rms_all, 50.0);

@@ -229,19 +229,32 @@ pub fn clipped_fraction(x: &[f64], min_run: usize) -> f64 {
 /// aliases into the band; phase does not matter for an RMS). `None` when
 /// the recording is too short for two windows.
 pub fn motion_fraction(raw: &[f64], y: &[f64], fs: f64, window_s: f64, ratio: f64) -> Option<f64> {
-    let sos = butter_sos(2, Band::Bandpass(1.0, 10.0), fs).ok()?;
+    let sos = motion_band(fs).ok()?;
     let mut lf = raw.to_vec();
     // Start from the steady state of the first sample so an offset does not ring.
+    let x0 = raw.first().copied().unwrap_or(0.0);
     let mut zi: Vec<[f64; 2]> = sosfilt_zi(&sos)
         .into_iter()
-        .map(|z| {
-            [
-                z[0] * raw.first().copied().unwrap_or(0.0),
-                z[1] * raw.first().copied().unwrap_or(0.0),
-            ]
-        })
+        .map(|z| [z[0] * x0, z[1] * x0])
         .collect();
     sosfilt_inplace(&sos, &mut lf, &mut zi);
+    motion_fraction_of_band(&lf, y, fs, window_s, ratio)
+}
+
+/// The low band of the motion check: 2nd-order Butterworth band-pass 1–10 Hz.
+pub fn motion_band(fs: f64) -> crate::Result<super::filter::Sos> {
+    butter_sos(2, Band::Bandpass(1.0, 10.0), fs)
+}
+
+/// [`motion_fraction`] from the low band `lf` already filtered (by
+/// [`motion_band`], causally from the steady state of the first sample).
+pub fn motion_fraction_of_band(
+    lf: &[f64],
+    y: &[f64],
+    fs: f64,
+    window_s: f64,
+    ratio: f64,
+) -> Option<f64> {
     let per = ((window_s * fs).round() as usize).max(1);
     let windows = lf.len().min(y.len()) / per;
     if windows < 2 {
