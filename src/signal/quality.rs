@@ -135,7 +135,7 @@ impl Default for QualityConfig {
             clip_suspect: 0.001,
             clip_bad: 0.1,
             mains_detect_ratio: 4.0,
-            mains_suspect: 0.3,
+            mains_suspect: 0.5,
             mains_bad: 0.5,
             snr_suspect: 1.5,
             motion_window_s: 0.5,

@@ -379,7 +379,7 @@ within 1 Hz of a mains harmonic is this many times the median of the flanks 3-8 
         (
             "quality.mains_suspect",
             "Share of a site's raw in-band power that is mains hum making it \
-suspect.",
+suspect (mains-dominated: more hum than everything else).",
         ),
         (
             "quality.mains_bad",
