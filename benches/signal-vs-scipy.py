@@ -58,8 +58,8 @@ def main():
         e = signal.sosfiltfilt(lp, np.abs(y), axis=-1)
         return np.stack([np.interp(grid, t, row) for row in e])
 
-    scipy_filt = best_of(3, lambda: signal.sosfiltfilt(cascade, x, axis=-1))
-    scipy_chain = best_of(3, chain)
+    scipy_filt = best_of(5, lambda: signal.sosfiltfilt(cascade, x, axis=-1))
+    scipy_chain = best_of(5, chain)
     ours_filt = float(re.search(r"sosfiltfilt cascade .*lockstep, 1 thread: ([0-9.]+) s", out).group(1))
     ours_cond = float(re.search(r"condition, 1 thread: ([0-9.]+) s", out).group(1))
     print(f"scipy sosfiltfilt cascade, 1 thread: {scipy_filt:.3f} s")

@@ -80,7 +80,7 @@ fn main() {
         cascade = cascade.then(&Sos::new(vec![iirnotch(f0, 30.0, FS).unwrap()]));
     }
     let mut out = Vec::new();
-    let filt = best_of(3, || {
+    let filt = best_of(5, || {
         for row in rec.data.rows() {
             sosfiltfilt_into(&cascade, row.as_slice().unwrap(), &mut out).unwrap();
         }
@@ -92,7 +92,7 @@ fn main() {
         .map(|r| r.to_slice().unwrap())
         .collect();
     let mut outs = vec![Vec::new(); LANES];
-    let lanes = best_of(3, || {
+    let lanes = best_of(5, || {
         for chunk in rows.chunks(LANES) {
             sosfiltfilt_many(&cascade, chunk, &mut outs).unwrap();
         }
@@ -102,11 +102,11 @@ fn main() {
         .build()
         .unwrap();
     let mut mains = None;
-    let cond1 = best_of(3, || {
+    let cond1 = best_of(5, || {
         let c = one.install(|| condition(&rec, &[], &[], &cfg).unwrap());
         mains = c.mains_hz;
     });
-    let cond_all = best_of(3, || {
+    let cond_all = best_of(5, || {
         condition(&rec, &[], &[], &cfg).unwrap();
     });
     println!(
