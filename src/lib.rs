@@ -26,6 +26,7 @@
 #![warn(missing_docs)]
 
 pub mod error;
+pub mod protocol;
 pub mod session;
 pub mod simulate;
 
