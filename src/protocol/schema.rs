@@ -124,7 +124,7 @@ fn validate(text: &str, file: &Path) -> Result<Protocol, Vec<InputError>> {
     let lines = Lines::new(text);
     let raw: RawProtocol = match toml::from_str(text) {
         Ok(r) => r,
-        Err(e) => return Err(vec![toml_error(&e, file, &lines)]),
+        Err(e) => return Err(vec![toml_error(&e, text, file, &lines)]),
     };
     let mut pr = Problems {
         file,
@@ -145,7 +145,7 @@ fn validate(text: &str, file: &Path) -> Result<Protocol, Vec<InputError>> {
 
 /// An `InputError` from a TOML or serde error, with the line from its span
 /// and the key from the message where serde names one.
-fn toml_error(e: &toml::de::Error, file: &Path, lines: &Lines) -> InputError {
+fn toml_error(e: &toml::de::Error, text: &str, file: &Path, lines: &Lines) -> InputError {
     let msg = e.message().trim().to_string();
     let (kind, field) = if let Some(f) = quoted_after(&msg, "unknown field") {
         (InputErrorKind::Unexpected, Some(f))
@@ -159,13 +159,28 @@ fn toml_error(e: &toml::de::Error, file: &Path, lines: &Lines) -> InputError {
         (InputErrorKind::Malformed, None)
     };
     let mut err = InputError::new(file, kind, msg);
+    let mut field = field;
     if let Some(span) = e.span() {
-        err = err.at_line(lines.line(span.start));
+        let line = lines.line(span.start);
+        err = err.at_line(line);
+        if field.is_none() {
+            field = key_on_line(text, lines, line);
+        }
     }
     if let Some(f) = field {
         err = err.field(f);
     }
     err
+}
+
+/// The bare key assigned on 1-based `line` of `text` (`key = value`), if any.
+fn key_on_line(text: &str, lines: &Lines, line: usize) -> Option<String> {
+    let start = *lines.starts.get(line - 1)?;
+    let rest = &text[start..];
+    let l = &rest[..rest.find('\n').unwrap_or(rest.len())];
+    let (key, _) = l.split_once('=')?;
+    let key = key.trim();
+    is_id(key).then(|| key.to_string())
 }
 
 /// The first backtick-quoted word after `lead` in `msg`.
