@@ -19,7 +19,7 @@
 //! coverage, fatigue rules, see [`rules`]), [`session_blocks`] gives a
 //! session's task blocks, and [`play`] runs the live prompter.
 
-mod rules;
+pub mod rules;
 mod schema;
 mod session;
 mod timeline;
