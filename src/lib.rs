@@ -27,6 +27,7 @@
 
 pub mod error;
 pub mod output;
+pub mod protocol;
 pub mod report;
 pub mod session;
 pub mod simulate;

@@ -5,6 +5,7 @@ use clap::{Parser, Subcommand};
 use std::process::ExitCode;
 
 mod inspect;
+mod protocol;
 mod simulate;
 
 /// Electrode-site selection for myoelectric hands from mirrored bilateral calibration sessions.
@@ -23,6 +24,8 @@ pub enum Command {
     Simulate(simulate::Args),
     /// Read and check a session folder and summarise it.
     Inspect(inspect::Args),
+    /// List, check, expand and play task protocols.
+    Protocol(protocol::Args),
 }
 
 /// Writes `text` to stdout; a closed pipe (e.g. `| head`) is not an error.
@@ -42,5 +45,6 @@ pub fn run(cli: Cli) -> mirrorsite::Result<ExitCode> {
     match cli.command {
         Command::Simulate(a) => simulate::run(a),
         Command::Inspect(a) => inspect::run(a),
+        Command::Protocol(a) => protocol::run(a),
     }
 }
