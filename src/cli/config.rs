@@ -18,7 +18,7 @@ pub struct Args {
 /// Runs the command.
 pub fn run(args: Args) -> mirrorsite::Result<ExitCode> {
     if args.defaults {
-        print!("{}", Config::defaults_toml());
+        super::print_out(&Config::defaults_toml())?;
         return Ok(ExitCode::SUCCESS);
     }
     match args.check {
@@ -26,7 +26,7 @@ pub fn run(args: Args) -> mirrorsite::Result<ExitCode> {
             let cfg = Config::load(&path)?;
             let text = toml::to_string(&cfg)
                 .map_err(|e| mirrorsite::Error::Analysis(format!("cannot print settings: {e}")))?;
-            print!("{text}");
+            super::print_out(&text)?;
             Ok(ExitCode::SUCCESS)
         }
         None => Err(mirrorsite::Error::Argument(

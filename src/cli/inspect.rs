@@ -28,9 +28,10 @@ pub fn run(args: Args) -> mirrorsite::Result<ExitCode> {
         None => Config::default(),
     };
     let s = session::read(&args.session)?;
-    let (blocks, source) = match &s.events {
-        Some(ev) => (ev.clone(), "events"),
-        None => (Vec::new(), "protocol"),
+    let (blocks, source) = mirrorsite::protocol::session_blocks(&s)?;
+    let source = match source {
+        session::BlockSource::Events => "events",
+        session::BlockSource::Protocol => "protocol",
     };
     let cond = signal::condition(&s.emg, s.sites(), &blocks, &cfg.signal)?;
     let summary = Summary::new(&s, blocks, source);
@@ -40,10 +41,9 @@ pub fn run(args: Args) -> mirrorsite::Result<ExitCode> {
         add_quality(&mut v, &cond);
         let text = serde_json::to_string_pretty(&v)
             .map_err(|e| mirrorsite::Error::Analysis(e.to_string()))?;
-        println!("{text}");
+        super::print_out(&(text + "\n"))?;
     } else {
-        print!("{}", summary.to_text());
-        print!("{}", quality_text(&cond));
+        super::print_out(&(summary.to_text() + &quality_text(&cond)))?;
     }
     Ok(ExitCode::SUCCESS)
 }

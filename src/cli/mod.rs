@@ -6,6 +6,7 @@ use std::process::ExitCode;
 
 mod config;
 mod inspect;
+mod protocol;
 mod simulate;
 
 /// Electrode-site selection for myoelectric hands from mirrored bilateral calibration sessions.
@@ -26,6 +27,20 @@ pub enum Command {
     Inspect(inspect::Args),
     /// Print or check the analysis configuration file.
     Config(config::Args),
+    /// List, check, expand and play task protocols.
+    Protocol(protocol::Args),
+}
+
+/// Writes `text` to stdout; a closed pipe (e.g. `| head`) is not an error.
+pub fn print_out(text: &str) -> mirrorsite::Result<()> {
+    use std::io::Write;
+    let mut out = std::io::stdout().lock();
+    match out.write_all(text.as_bytes()).and_then(|_| out.flush()) {
+        Err(e) if e.kind() != std::io::ErrorKind::BrokenPipe => {
+            Err(mirrorsite::Error::io("standard output", e))
+        }
+        _ => Ok(()),
+    }
 }
 
 /// Runs one command.
@@ -34,5 +49,6 @@ pub fn run(cli: Cli) -> mirrorsite::Result<ExitCode> {
         Command::Simulate(a) => simulate::run(a),
         Command::Inspect(a) => inspect::run(a),
         Command::Config(a) => config::run(a),
+        Command::Protocol(a) => protocol::run(a),
     }
 }
