@@ -111,6 +111,10 @@ pub struct QualityConfig {
     pub mains_suspect: f64,
     /// Hum fraction left after the notch that makes a site bad.
     pub mains_bad: f64,
+    /// Hum fraction of the raw channel that makes a site bad even when the
+    /// notch removes the hum: the electrode then sees next to no EMG
+    /// (poor contact), and a socket electrode there would not be reliable.
+    pub mains_raw_bad: f64,
     /// Activity ratio below which a site is suspect (low signal-to-noise).
     pub snr_suspect: f64,
     /// Window for the motion check, s.
@@ -137,6 +141,7 @@ impl Default for QualityConfig {
             mains_detect_ratio: 4.0,
             mains_suspect: 0.5,
             mains_bad: 0.5,
+            mains_raw_bad: 0.9,
             snr_suspect: 1.5,
             motion_window_s: 0.5,
             motion_ratio: 1.0,
@@ -398,16 +403,21 @@ pub fn judge(site: &str, figures: Figures, median_rms_mv: f64, cfg: &QualityConf
         ));
     }
     if let Some(h) = f.hum_fraction.filter(|&h| h >= cfg.mains_suspect) {
+        let (sev, thr) = if h >= cfg.mains_raw_bad {
+            (Bad, cfg.mains_raw_bad)
+        } else {
+            (Suspect, cfg.mains_suspect)
+        };
         reasons.push(reason(
             "mains",
-            Suspect,
+            sev,
             format!(
                 "mains hum is {:.0}% of the raw in-band power (limit {:.0}%): check the electrode contact and reference",
                 h * 100.0,
-                cfg.mains_suspect * 100.0
+                thr * 100.0
             ),
             h,
-            cfg.mains_suspect,
+            thr,
         ));
     }
     if let Some(h) = f.residual_hum_fraction.filter(|&h| h >= cfg.mains_bad) {

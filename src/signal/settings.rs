@@ -199,6 +199,7 @@ impl SignalConfig {
             ("quality.clip_bad", q.clip_bad),
             ("quality.mains_suspect", q.mains_suspect),
             ("quality.mains_bad", q.mains_bad),
+            ("quality.mains_raw_bad", q.mains_raw_bad),
             ("quality.motion_suspect", q.motion_suspect),
             ("quality.motion_bad", q.motion_bad),
         ];
@@ -384,6 +385,12 @@ suspect (mains-dominated: more hum than everything else).",
         (
             "quality.mains_bad",
             "Share of power still mains hum after the notch making a site bad.",
+        ),
+        (
+            "quality.mains_raw_bad",
+            "Share of a site's raw in-band power that is mains hum making it bad \
+even though the notch removes the hum: the electrode sees next to no EMG (poor contact) \
+and would not be reliable in a socket (engineering judgement).",
         ),
         (
             "quality.snr_suspect",
