@@ -25,11 +25,14 @@
 
 #![warn(missing_docs)]
 
+pub mod config;
 pub mod error;
 pub mod output;
+pub mod protocol;
 pub mod report;
 pub mod select;
 pub mod session;
+pub mod signal;
 pub mod simulate;
 
 pub use error::{Error, InputError, InputErrorKind, Result};

@@ -58,3 +58,22 @@ fn bad_input_exits_2_with_one_located_message() {
     assert!(err.contains("emg.csv, line 12, field `S1`"), "{err}");
     assert!(!err.contains("panicked"));
 }
+
+#[test]
+fn without_events_the_blocks_come_from_the_protocol() {
+    let (_t, d) = copy_session();
+    std::fs::remove_file(d.join("events.csv")).unwrap();
+    let out = bin().args(["inspect", "--json"]).arg(&d).output().unwrap();
+    assert!(
+        out.status.success(),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    let v: serde_json::Value = serde_json::from_slice(&out.stdout).unwrap();
+    assert_eq!(v["block_source"], "protocol");
+    let blocks = v["blocks"].as_array().unwrap();
+    assert!(!blocks.is_empty());
+    // protocol_start_s = lead-in (1 s) of the small scenario
+    assert!((blocks[0]["start_s"].as_f64().unwrap() - 1.0).abs() < 1e-9);
+    assert!(blocks.iter().all(|b| b["words"].is_string()));
+}

@@ -4,7 +4,9 @@
 use clap::{Parser, Subcommand};
 use std::process::ExitCode;
 
+mod config;
 mod inspect;
+mod protocol;
 mod simulate;
 
 /// Electrode-site selection for myoelectric hands from mirrored bilateral calibration sessions.
@@ -23,6 +25,10 @@ pub enum Command {
     Simulate(simulate::Args),
     /// Read and check a session folder and summarise it.
     Inspect(inspect::Args),
+    /// Print or check the analysis configuration file.
+    Config(config::Args),
+    /// List, check, expand and play task protocols.
+    Protocol(protocol::Args),
 }
 
 /// Writes `text` to stdout; a closed pipe (e.g. `| head`) is not an error.
@@ -42,5 +48,7 @@ pub fn run(cli: Cli) -> mirrorsite::Result<ExitCode> {
     match cli.command {
         Command::Simulate(a) => simulate::run(a),
         Command::Inspect(a) => inspect::run(a),
+        Command::Config(a) => config::run(a),
+        Command::Protocol(a) => protocol::run(a),
     }
 }
