@@ -10,6 +10,7 @@
 //! and a line to [`Config::defaults_toml`] and [`Config::validate`].
 
 use crate::error::{Error, InputError, InputErrorKind, Result};
+use crate::select::SelectConfig;
 use crate::signal::SignalConfig;
 use serde::{Deserialize, Serialize};
 use std::path::Path;
@@ -31,6 +32,8 @@ pub trait ConfigSection: Serialize + Default {
 pub struct Config {
     /// Signal conditioning and channel quality.
     pub signal: SignalConfig,
+    /// Per-DoF selection.
+    pub select: SelectConfig,
 }
 
 impl Config {
@@ -59,7 +62,10 @@ impl Config {
     pub fn validate(&self) -> std::result::Result<(), (String, String)> {
         self.signal
             .validate()
-            .map_err(|e| (format!("{}.{}", SignalConfig::NAME, e.key), e.message))
+            .map_err(|e| (format!("{}.{}", SignalConfig::NAME, e.key), e.message))?;
+        self.select
+            .check()
+            .map_err(|(k, m)| (format!("{}.{k}", SelectConfig::NAME), m))
     }
 
     /// The default configuration as commented TOML: every key with its
@@ -71,6 +77,7 @@ impl Config {
              # Unknown keys are errors.\n",
         );
         render_section::<SignalConfig>(&mut out);
+        render_section::<SelectConfig>(&mut out);
         out
     }
 }

@@ -74,12 +74,18 @@ impl Default for SelectConfig {
 impl SelectConfig {
     /// Checks ranges; errors name the key.
     pub fn validate(&self) -> crate::Result<()> {
-        let bad = |k: &str, why: &str| Err(crate::Error::Argument(format!("select.{k}: {why}")));
+        self.check()
+            .map_err(|(k, m)| crate::Error::Argument(format!("select.{k}: {m}")))
+    }
+
+    /// Checks ranges; on failure the key inside `[select]` and the message.
+    pub fn check(&self) -> Result<(), (String, String)> {
+        let bad = |k: &str, why: &str| Err((k.to_string(), why.to_string()));
         if !(self.lag_window_s > 0.0 && self.lag_window_s <= 2.0) {
             return bad("lag_window_s", "must be in (0, 2] s");
         }
         if self.n_lag < 4 || self.n_pos < 4 {
-            return bad("n_lag", "cubic B-splines need at least 4 functions");
+            return bad("n_lag", "cubic B-splines need at least 4 functions (n_lag and n_pos)");
         }
         if self.n_baseline == 2 || self.n_baseline == 3 {
             return bad("n_baseline", "must be 0, 1 or at least 4");
@@ -87,14 +93,16 @@ impl SelectConfig {
         if self.folds < 2 {
             return bad("folds", "needs at least 2");
         }
-        if self.n_lambda < 2 || !(self.lambda_ratio > 0.0 && self.lambda_ratio < 1.0) {
-            return bad("lambda_ratio", "needs n_lambda ≥ 2 and 0 < ratio < 1");
+        if self.n_lambda < 2 {
+            return bad("n_lambda", "needs at least 2");
         }
-        if self.phi_s.is_empty() || self.phi_z.is_empty() {
-            return bad("phi_s", "needs at least one value each for phi_s and phi_z");
+        if !(self.lambda_ratio > 0.0 && self.lambda_ratio < 1.0) {
+            return bad("lambda_ratio", "must lie between 0 and 1");
         }
-        if self.phi_s.iter().chain(&self.phi_z).any(|v| !(*v >= 0.0 && v.is_finite())) {
-            return bad("phi_s", "smoothing values must be finite and ≥ 0");
+        for (k, v) in [("phi_s", &self.phi_s), ("phi_z", &self.phi_z)] {
+            if v.is_empty() || v.iter().any(|x| !(*x >= 0.0 && x.is_finite())) {
+                return bad(k, "needs one or more finite values ≥ 0");
+            }
         }
         if self.stages == 0 {
             return bad("stages", "needs at least 1");
@@ -105,6 +113,50 @@ impl SelectConfig {
         if !(self.resample_block_s > 0.0) {
             return bad("resample_block_s", "must be positive");
         }
+        if !(0.0..=1.0).contains(&self.alternate_correlation) {
+            return bad("alternate_correlation", "must lie between 0 and 1");
+        }
+        if !(self.tol_gap > 0.0 && self.tol_gap < 1e-2) {
+            return bad("tol_gap", "must lie between 0 and 0.01");
+        }
         Ok(())
     }
+}
+
+impl crate::config::ConfigSection for SelectConfig {
+    const NAME: &'static str = "select";
+    const ABOUT: &'static str = "Per-DoF selection: the functional group-lasso model, its tuning by \
+block cross-validation with the one-standard-error rule, staged adaptive refits, stability \
+selection and alternates.";
+    const KEYS: &'static [(&'static str, &'static str)] = &[
+        ("lag_window_s", "Lag window delta in s over which each site's envelope acts on the velocity: \
+electro-mechanical delay (about 30-100 ms; Cavanagh & Komi 1979) plus the build-up of force."),
+        ("n_lag", "Cubic B-splines along the lag of each effect surface."),
+        ("n_pos", "Cubic B-splines along the position of each effect surface."),
+        ("n_baseline", "Cubic B-splines of the unpenalised position baseline a(z) (passive movement); \
+0 = none, 1 = intercept only."),
+        ("folds", "Contiguous cross-validation blocks in time, with a gap of one lag window on each \
+side of the held-out block (h-block CV; Burman, Chow & Nolan 1994)."),
+        ("n_lambda", "Values on each log-spaced lambda path from lambda_max."),
+        ("lambda_ratio", "Smallest lambda as a share of lambda_max (glmnet's convention)."),
+        ("phi_s", "Smoothing along the lag, relative to tr(M)/tr(P_s) so that it does not depend on \
+the window length; log-spaced values tried in tuning."),
+        ("phi_z", "Smoothing along the position, relative to tr(M)/tr(P_z); log-spaced values tried \
+in tuning."),
+        ("stages", "Largest number of stages: stage 1 with equal weights, then adaptive refits on the \
+kept sites with weights 1/norm (adaptive lasso, Zou 2006)."),
+        ("resamples", "Moving-block bootstrap refits for the selection frequency (stability \
+selection, Meinshausen & Buehlmann 2010)."),
+        ("resample_block_s", "Length in s of the bootstrap blocks (keeps the time dependence inside \
+a block; Kuensch 1989)."),
+        ("high_frequency", "Selection frequency at or above which a pick has high confidence \
+(Meinshausen & Buehlmann recommend thresholds of 0.6-0.9)."),
+        ("low_frequency", "Selection frequency below which a pick has low confidence; between the \
+two it is medium and flagged for review."),
+        ("alternate_correlation", "Smallest envelope correlation for an unselected site to be \
+offered as an alternate (engineering judgement)."),
+        ("max_alternates", "Most alternates reported per selected site."),
+        ("tol_gap", "Relative duality-gap tolerance of the group-lasso solver."),
+        ("seed", "Seed of the bootstrap resampling."),
+    ];
 }
