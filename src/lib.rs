@@ -25,6 +25,7 @@
 
 #![warn(missing_docs)]
 
+pub mod align;
 pub mod error;
 pub mod session;
 pub mod simulate;
