@@ -27,6 +27,7 @@
 
 pub mod align;
 pub mod error;
+pub mod output;
 pub mod session;
 pub mod simulate;
 

@@ -1,16 +1,33 @@
-//! `mirrorsite inspect`.
+//! `mirrorsite inspect`: read, check and summarise a session folder.
 
+use mirrorsite::session::{self, Summary};
 use std::path::PathBuf;
 use std::process::ExitCode;
 
 /// Arguments of `mirrorsite inspect`.
 #[derive(Debug, clap::Args)]
 pub struct Args {
-    /// Input file or folder.
-    pub input: PathBuf,
+    /// The session folder.
+    pub session: PathBuf,
+    /// Print one JSON object on stdout instead of text.
+    #[arg(long)]
+    pub json: bool,
 }
 
 /// Runs the command.
-pub fn run(_args: Args) -> mirrorsite::Result<ExitCode> {
-    Err(mirrorsite::Error::Analysis("not built yet".into()))
+pub fn run(args: Args) -> mirrorsite::Result<ExitCode> {
+    let s = session::read(&args.session)?;
+    let (blocks, source) = match &s.events {
+        Some(ev) => (ev.clone(), "events"),
+        None => (Vec::new(), "protocol"),
+    };
+    let summary = Summary::new(&s, blocks, source);
+    if args.json {
+        let text = serde_json::to_string_pretty(&summary)
+            .map_err(|e| mirrorsite::Error::Analysis(e.to_string()))?;
+        println!("{text}");
+    } else {
+        print!("{}", summary.to_text());
+    }
+    Ok(ExitCode::SUCCESS)
 }
