@@ -68,6 +68,7 @@ fn main() {
             band: Some(r),
             pattern,
             path,
+            side_penalty: 0.0,
         };
         let (x, y) = (&x, &y);
         move || {

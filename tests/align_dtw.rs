@@ -39,6 +39,8 @@ struct Case {
     y: Vec<f64>,
     distance: f64,
     path: Vec<(usize, usize)>,
+    #[serde(default)]
+    penalty: f64,
 }
 
 fn pattern(name: &str) -> StepPattern {
@@ -57,6 +59,7 @@ fn opts(band: Option<usize>, pattern: StepPattern) -> DtwOptions {
         band,
         pattern,
         path: true,
+        side_penalty: 0.0,
     }
 }
 
@@ -71,7 +74,12 @@ fn matches_dtw_python_and_dtaidistance() {
         } else {
             Cost::Absolute
         };
-        let w = dtw_series(&c.x, &c.y, cost, &opts(c.band, pattern(&c.pattern))).unwrap();
+        // dtaidistance's penalty p costs p² per side step with the squared cost.
+        let o = DtwOptions {
+            side_penalty: c.penalty * c.penalty,
+            ..opts(c.band, pattern(&c.pattern))
+        };
+        let w = dtw_series(&c.x, &c.y, cost, &o).unwrap();
         // Inputs are rounded to 1e-6 and sums run over ≤ 200 terms: 1e-9 relative is far above rounding.
         let tol = 1e-9 * c.distance.abs().max(1.0);
         assert!(

@@ -25,8 +25,14 @@ pub struct AlignConfig {
     pub smooth_s: f64,
     /// Moving-average width applied to the alignment features, s.
     pub feature_smooth_s: f64,
+    /// Width (Gaussian σ) of the local linear smoother of the intact angles, s.
+    pub kinematics_smooth_s: f64,
     /// Intact-side speed below which a DoF is taken as still in a block, deg/s (RMS over the block).
     pub min_speed_dps: f64,
+    /// Cost added to each compression or expansion step of the warp path, in
+    /// units of the standardised squared feature difference: the path leaves
+    /// the diagonal only where the features pay for it, not to chase envelope noise.
+    pub side_penalty: f64,
     /// Number of fit–warp rounds (composite activation refitted on the warped intact side).
     pub rounds: usize,
     /// Quality thresholds.
@@ -42,7 +48,9 @@ impl Default for AlignConfig {
             margin_s: None,
             smooth_s: 0.3,
             feature_smooth_s: 0.05,
+            kinematics_smooth_s: 0.03,
             min_speed_dps: 5.0,
+            side_penalty: 0.5,
             rounds: 3,
             quality: QualityThresholds::default(),
         }
@@ -69,6 +77,7 @@ impl AlignConfig {
         pos(self.band_s, "band_s")?;
         pos(self.smooth_s, "smooth_s")?;
         pos(self.feature_smooth_s, "feature_smooth_s")?;
+        pos(self.kinematics_smooth_s, "kinematics_smooth_s")?;
         if !(self.max_slope.is_finite() && self.max_slope > 1.0) {
             return Err(format!(
                 "align.max_slope must be above 1, got {}",

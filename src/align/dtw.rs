@@ -28,6 +28,10 @@
 //!   stays within [1/s, s] with s = (diag + side)/diag. P = 1/2, 1 and 2 are
 //!   dtw-python's `symmetricP05`, `symmetricP1` and `symmetricP2`.
 //!
+//! A constant `side_penalty` may be added to every non-diagonal step (as
+//! dtaidistance's `penalty`), so that the path leaves the diagonal only where
+//! the features pay for it.
+//!
 //! Why not only the `dtw` crate: version 0.1 offers the symmetric1 recursion
 //! with a row-segment constraint and returns the path alone. It has no
 //! distance, no step patterns or slope limits (which the alignment needs so
@@ -198,6 +202,10 @@ pub struct DtwOptions {
     pub pattern: StepPattern,
     /// Whether to trace the path back (otherwise only the distance).
     pub path: bool,
+    /// Cost added to every step that is not a pure diagonal move (a
+    /// compression or expansion), discouraging warps that only chase noise.
+    /// 0 for plain DTW. Same convention as dtaidistance's `penalty`.
+    pub side_penalty: f64,
 }
 
 impl Default for DtwOptions {
@@ -206,6 +214,7 @@ impl Default for DtwOptions {
             band: None,
             pattern: StepPattern::Symmetric1,
             path: true,
+            side_penalty: 0.0,
         }
     }
 }
@@ -251,8 +260,8 @@ pub fn banded<F: Fn(usize, usize) -> f64>(
         )));
     }
     let mut grid = match opts.pattern {
-        StepPattern::Symmetric1 => Grid::symmetric1(n, m, r, &d),
-        p => Grid::general(n, m, r, &p.steps(), &d),
+        StepPattern::Symmetric1 => Grid::symmetric1(n, m, r, opts.side_penalty, &d),
+        p => Grid::general(n, m, r, &p.steps(), opts.side_penalty, &d),
     };
     let distance = grid.g(n - 1, m - 1);
     if !distance.is_finite() {
@@ -286,6 +295,8 @@ struct Grid {
     /// Chosen step per cell (general patterns only).
     choice: Vec<u8>,
     steps: Vec<Step>,
+    /// Side-step penalty (symmetric1 trace needs it).
+    penalty: f64,
 }
 
 impl Grid {
@@ -314,6 +325,7 @@ impl Grid {
             g: vec![f64::INFINITY; (n + top) * stride],
             choice: Vec::new(),
             steps: Vec::new(),
+            penalty: 0.0,
         }
     }
 
@@ -325,8 +337,9 @@ impl Grid {
         (lo, hi)
     }
 
-    fn symmetric1<F: Fn(usize, usize) -> f64>(n: usize, m: usize, r: usize, d: &F) -> Self {
+    fn symmetric1<F: Fn(usize, usize) -> f64>(n: usize, m: usize, r: usize, pen: f64, d: &F) -> Self {
         let mut grid = Grid::alloc(n, m, r, 1, 1);
+        grid.penalty = pen;
         let s = grid.stride;
         for i in 0..n {
             let (lo, hi) = grid.k_range(i);
@@ -340,8 +353,8 @@ impl Grid {
                 } else {
                     // (i-1, j-1) sits at the same k one row up, (i-1, j) at k+1, (i, j-1) at k-1.
                     let diag = g[c - s];
-                    let up = g[c - s + 1];
-                    let left = g[c - 1];
+                    let up = g[c - s + 1] + pen;
+                    let left = g[c - 1] + pen;
                     diag.min(left).min(up)
                 };
                 g[c] = best + d(i, j);
@@ -355,6 +368,7 @@ impl Grid {
         m: usize,
         r: usize,
         steps: &[Step],
+        pen: f64,
         d: &F,
     ) -> Self {
         let mut steps = steps.to_vec();
@@ -380,12 +394,14 @@ impl Grid {
         }
         // Offsets of each step's cells in the flat layout, relative to the target.
         let s = grid.stride as isize;
-        let offs: Vec<(isize, Vec<(isize, f64)>)> = steps
+        let offs: Vec<(isize, f64, Vec<(isize, f64)>)> = steps
             .iter()
             .map(|st| {
                 let o = |a: usize, b: usize| -(a as isize) * s + (a as isize - b as isize);
+                let extra = if st.origin.0 == st.origin.1 { 0.0 } else { pen };
                 (
                     o(st.origin.0, st.origin.1),
+                    extra,
                     st.cells.iter().map(|&(a, b, w)| (o(a, b), w)).collect(),
                 )
             })
@@ -402,11 +418,12 @@ impl Grid {
                 }
                 let mut best = f64::INFINITY;
                 let mut which = u8::MAX;
-                for (p, (origin, cells)) in offs.iter().enumerate() {
+                for (p, (origin, extra, cells)) in offs.iter().enumerate() {
                     let mut v = grid.g[(c as isize + origin) as usize];
                     if v == f64::INFINITY {
                         continue;
                     }
+                    v += extra;
                     for &(o, w) in cells {
                         v += w * local[(c as isize + o) as usize];
                     }
@@ -435,7 +452,8 @@ impl Grid {
                 let mut best = (f64::INFINITY, (1, 1));
                 for (a, b) in cands {
                     if a <= i && b <= j {
-                        let v = self.g(i - a, j - b);
+                        let extra = if a == b { 0.0 } else { self.penalty };
+                        let v = self.g(i - a, j - b) + extra;
                         if v < best.0 {
                             best = (v, (a, b));
                         }
