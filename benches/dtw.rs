@@ -69,6 +69,7 @@ fn main() {
             pattern,
             path,
             side_penalty: 0.0,
+            open_ends: false,
         };
         let (x, y) = (&x, &y);
         move || {

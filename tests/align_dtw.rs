@@ -60,6 +60,7 @@ fn opts(band: Option<usize>, pattern: StepPattern) -> DtwOptions {
         pattern,
         path: true,
         side_penalty: 0.0,
+        open_ends: false,
     }
 }
 

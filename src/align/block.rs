@@ -57,6 +57,9 @@ pub struct BlockOutcome {
     pub intact_after: Vec<Vec<f64>>,
 }
 
+/// Number of leading basis series (speed times effort) shared by the two directions of a DoF.
+const SHARED: usize = 2;
+
 /// Smallest correlation between a composite and its intact feature for the feature to take part.
 const MIN_FEATURE_CORR: f64 = 0.3;
 
@@ -131,6 +134,7 @@ pub fn align_block(d: &BlockData, cfg: &AlignConfig) -> Result<BlockOutcome> {
         pattern,
         path: true,
         side_penalty: cfg.side_penalty,
+        open_ends: true,
     };
     let len = n + 2 * d.ext;
     let basis: Vec<Vec<Vec<f64>>> = d
@@ -163,27 +167,65 @@ pub fn align_block(d: &BlockData, cfg: &AlignConfig) -> Result<BlockOutcome> {
     let mut intact: Vec<Vec<f64>> = vec![Vec::new(); nc];
     let mut scale = vec![0.0; nc];
     for _round in 0..cfg.rounds {
-        for c in 0..nc {
-            let warped: Vec<Vec<f64>> = basis[c].iter().map(|f| at(&lag, f)).collect();
-            let mut beta = vec![0.0; warped.len()];
-            beta[0] = 1.0;
-            let mut a = Vec::new();
+        // Channels come in pairs (the two directions of one DoF) that share
+        // the position-dependent effort: a skew that one direction could
+        // mistake for a timing change shows with the opposite sign in the other.
+        for first in (0..nc).step_by(2) {
+            let pair: Vec<usize> = (first..(first + 2).min(nc)).collect();
+            let warped: Vec<Vec<Vec<f64>>> = pair
+                .iter()
+                .map(|&c| basis[c].iter().map(|f| at(&lag, f)).collect())
+                .collect();
+            let nb = warped[0].len();
+            let mut beta: Vec<Vec<f64>> = pair
+                .iter()
+                .map(|_| (0..nb).map(|m| if m < SHARED { 1.0 } else { 0.0 }).collect())
+                .collect();
+            let mut comps = vec![Vec::new(); pair.len()];
             for _als in 0..4 {
-                let target = combine(&warped, &beta, 0.0, n);
-                let (b0, w) = nnls_intercept(&env, &target);
-                a = combine(&env, &w, b0, n);
-                let (_, bt) = nnls_intercept(&warped, &a);
-                if bt.iter().all(|&v| v == 0.0) {
+                for (p, _) in pair.iter().enumerate() {
+                    let target = combine(&warped[p], &beta[p], 0.0, n);
+                    let (b0, w) = nnls_intercept(&env, &target);
+                    comps[p] = combine(&env, &w, b0, n);
+                }
+                // Joint fit: shared speed-effort columns, own displacement columns.
+                let np = pair.len();
+                let ncol = SHARED + np * (nb - SHARED);
+                let mut cols = vec![vec![0.0; np * n]; ncol];
+                let mut y = vec![0.0; np * n];
+                for p in 0..np {
+                    let (my, _) = mean_sd(&comps[p]);
+                    for i in 0..n {
+                        y[p * n + i] = comps[p][i] - my;
+                    }
+                    for m in 0..nb {
+                        let col = if m < SHARED { m } else { SHARED + p * (nb - SHARED) + (m - SHARED) };
+                        let (mm, _) = mean_sd(&warped[p][m]);
+                        for i in 0..n {
+                            cols[col][p * n + i] = warped[p][m][i] - mm;
+                        }
+                    }
+                }
+                let (_, coef) = nnls_intercept(&cols, &y);
+                if coef.iter().all(|&v| v == 0.0) {
                     break;
                 }
-                beta = bt;
+                for p in 0..np {
+                    for m in 0..nb {
+                        let col = if m < SHARED { m } else { SHARED + p * (nb - SHARED) + (m - SHARED) };
+                        beta[p][m] = coef[col];
+                    }
+                }
             }
-            let target = combine(&warped, &beta, 0.0, n);
-            let rho = pearson(&inner(&a), &inner(&target));
-            scale[c] = if rho.is_finite() && rho >= MIN_FEATURE_CORR { rho } else { 0.0 };
-            composite[c] = standardise(&a, &a);
-            let full = combine(&basis[c], &beta, 0.0, len);
-            intact[c] = standardise(&full, &full[d.ext..d.ext + n]);
+            for (p, &c) in pair.iter().enumerate() {
+                let target = combine(&warped[p], &beta[p], 0.0, n);
+                let a = &comps[p];
+                let rho = pearson(&inner(a), &inner(&target));
+                scale[c] = if rho.is_finite() && rho >= MIN_FEATURE_CORR { rho } else { 0.0 };
+                composite[c] = standardise(a, a);
+                let full = combine(&basis[c], &beta[p], 0.0, len);
+                intact[c] = standardise(&full, &full[d.ext..d.ext + n]);
+            }
         }
         if scale.iter().all(|&v| v == 0.0) {
             break;

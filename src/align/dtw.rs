@@ -204,8 +204,15 @@ pub struct DtwOptions {
     pub path: bool,
     /// Cost added to every step that is not a pure diagonal move (a
     /// compression or expansion), discouraging warps that only chase noise.
-    /// 0 for plain DTW. Same convention as dtaidistance's `penalty`.
+    /// 0 for plain DTW. With the squared cost, dtaidistance's `penalty = p`
+    /// is `side_penalty = p²`.
     pub side_penalty: f64,
+    /// Open begin and end: the path may start at any cell of the first row
+    /// or column and end at any cell of the last row or column inside the
+    /// band (each start costs its local cost, like (0, 0)); the end is the
+    /// one of least accumulated cost. Used with context margins so that the
+    /// ends of a window do not force a zero lag.
+    pub open_ends: bool,
 }
 
 impl Default for DtwOptions {
@@ -215,6 +222,7 @@ impl Default for DtwOptions {
             pattern: StepPattern::Symmetric1,
             path: true,
             side_penalty: 0.0,
+            open_ends: false,
         }
     }
 }
@@ -260,17 +268,29 @@ pub fn banded<F: Fn(usize, usize) -> f64>(
         )));
     }
     let mut grid = match opts.pattern {
-        StepPattern::Symmetric1 => Grid::symmetric1(n, m, r, opts.side_penalty, &d),
-        p => Grid::general(n, m, r, &p.steps(), opts.side_penalty, &d),
+        StepPattern::Symmetric1 => Grid::symmetric1(n, m, r, opts.side_penalty, opts.open_ends, &d),
+        p => Grid::general(n, m, r, &p.steps(), opts.side_penalty, opts.open_ends, &d),
     };
-    let distance = grid.g(n - 1, m - 1);
+    let mut end = (n - 1, m - 1);
+    if opts.open_ends {
+        let mut best = grid.g(n - 1, m - 1);
+        let cells = (0..m).map(|j| (n - 1, j)).chain((0..n).map(|i| (i, m - 1)));
+        for (i, j) in cells {
+            let v = grid.g(i, j);
+            if v < best {
+                best = v;
+                end = (i, j);
+            }
+        }
+    }
+    let distance = grid.g(end.0, end.1);
     if !distance.is_finite() {
         return Err(Error::Analysis(format!(
             "no warp path of lengths {n} and {m} satisfies the band of {r} samples and the slope limit"
         )));
     }
     let (path, at_limit) = if opts.path {
-        grid.trace()
+        grid.trace(end)
     } else {
         (Vec::new(), Vec::new())
     };
@@ -297,6 +317,8 @@ struct Grid {
     steps: Vec<Step>,
     /// Side-step penalty (symmetric1 trace needs it).
     penalty: f64,
+    /// Open begin: the trace stops on the first row or column.
+    open: bool,
 }
 
 impl Grid {
@@ -326,6 +348,7 @@ impl Grid {
             choice: Vec::new(),
             steps: Vec::new(),
             penalty: 0.0,
+            open: false,
         }
     }
 
@@ -337,9 +360,17 @@ impl Grid {
         (lo, hi)
     }
 
-    fn symmetric1<F: Fn(usize, usize) -> f64>(n: usize, m: usize, r: usize, pen: f64, d: &F) -> Self {
+    fn symmetric1<F: Fn(usize, usize) -> f64>(
+        n: usize,
+        m: usize,
+        r: usize,
+        pen: f64,
+        open: bool,
+        d: &F,
+    ) -> Self {
         let mut grid = Grid::alloc(n, m, r, 1, 1);
         grid.penalty = pen;
+        grid.open = open;
         let s = grid.stride;
         for i in 0..n {
             let (lo, hi) = grid.k_range(i);
@@ -348,7 +379,7 @@ impl Grid {
             for k in lo..=hi {
                 let j = i + k - r;
                 let c = base + k;
-                let best = if i == 0 && j == 0 {
+                let best = if (i == 0 && j == 0) || (open && (i == 0 || j == 0)) {
                     0.0
                 } else {
                     // (i-1, j-1) sits at the same k one row up, (i-1, j) at k+1, (i, j-1) at k-1.
@@ -369,6 +400,7 @@ impl Grid {
         r: usize,
         steps: &[Step],
         pen: f64,
+        open: bool,
         d: &F,
     ) -> Self {
         let mut steps = steps.to_vec();
@@ -383,6 +415,7 @@ impl Grid {
         let top = steps.iter().map(|s| s.origin.0).max().unwrap_or(1);
         let pad = longest.max(1);
         let mut grid = Grid::alloc(n, m, r, pad, top);
+        grid.open = open;
         // Local costs in the same layout (∞ outside the grid).
         let mut local = vec![f64::INFINITY; grid.g.len()];
         for i in 0..n {
@@ -412,7 +445,7 @@ impl Grid {
             let base = grid.at(i, 0);
             for k in lo..=hi {
                 let c = base + k;
-                if i == 0 && i + k == r {
+                if (i == 0 && i + k == r) || (open && (i == 0 || i + k == r)) {
                     grid.g[c] = local[c];
                     continue;
                 }
@@ -441,11 +474,11 @@ impl Grid {
     }
 
     /// Traces the optimal path back from (n−1, m−1).
-    fn trace(&self) -> (Vec<(usize, usize)>, Vec<bool>) {
-        let (mut i, mut j) = (self.n - 1, self.m - 1);
+    fn trace(&self, end: (usize, usize)) -> (Vec<(usize, usize)>, Vec<bool>) {
+        let (mut i, mut j) = end;
         let mut path = vec![(i, j)];
         let mut limit = Vec::new();
-        while (i, j) != (0, 0) {
+        while (i, j) != (0, 0) && !(self.open && (i == 0 || j == 0)) {
             if self.steps.is_empty() {
                 // Symmetric1: recompute the argmin; ties go diagonal, then (i, j−1), then (i−1, j).
                 let cands = [(1, 1), (0, 1), (1, 0)];

@@ -260,14 +260,18 @@ pub fn align(s: &Session, env: &Envelopes, blocks: &[Block], cfg: &AlignConfig) 
                 .collect();
             let series = |f: &dyn Fn(f64, f64) -> f64| -> Vec<f64> { samples.iter().map(|&(p, v)| f(p, v)).collect() };
             let z = |p: f64| ((p - lo) / (hi - lo)).clamp(0.0, 1.0);
+            let ret = cfg.min_speed_dps;
             for (sign, word) in [(1.0, "positive"), (-1.0, "negative")] {
                 let speed = series(&|_, v| (sign * v).max(0.0));
                 let basis = vec![
-                    series(&|p, v| (sign * v).max(0.0) * (1.0 - z(p)).powi(2)),
-                    series(&|p, v| (sign * v).max(0.0) * 2.0 * z(p) * (1.0 - z(p))),
-                    series(&|p, v| (sign * v).max(0.0) * z(p).powi(2)),
+                    series(&|p, v| (sign * v).max(0.0) * (1.0 - z(p))),
+                    series(&|p, v| (sign * v).max(0.0) * z(p)),
                     series(&|p, _| (p - rest).max(0.0)),
                     series(&|p, _| (rest - p).max(0.0)),
+                    // Held displacement: gone as soon as the posture returns toward rest
+                    // (a passive release shows no holding activity).
+                    series(&|p, v| if v < -ret { 0.0 } else { (p - rest).max(0.0) }),
+                    series(&|p, v| if v > ret { 0.0 } else { (rest - p).max(0.0) }),
                 ];
                 channels.push(block::Channel {
                     label: format!("{} {word}", dofs[d]),

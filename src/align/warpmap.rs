@@ -18,7 +18,9 @@
 
 use crate::{Error, Result};
 
-/// Raw lag per EMG-grid index from a DTW path (samples), for `n` query indices.
+/// Raw lag per EMG-grid index from a DTW path (samples), for `n` query
+/// indices. Indices before the start or after the end of an open-ended path
+/// take the lag of the nearest covered index.
 pub fn raw_lag(path: &[(usize, usize)], n: usize) -> Result<Vec<f64>> {
     let mut sum = vec![0.0; n];
     let mut cnt = vec![0usize; n];
@@ -31,10 +33,19 @@ pub fn raw_lag(path: &[(usize, usize)], n: usize) -> Result<Vec<f64>> {
         sum[i] += j as f64 - i as f64;
         cnt[i] += 1;
     }
-    if let Some(i) = cnt.iter().position(|&c| c == 0) {
+    let first = cnt.iter().position(|&c| c > 0);
+    let last = cnt.iter().rposition(|&c| c > 0);
+    let (Some(first), Some(last)) = (first, last) else {
+        return Err(Error::Argument("empty warp path".into()));
+    };
+    if let Some(i) = (first..=last).find(|&i| cnt[i] == 0) {
         return Err(Error::Argument(format!("the path skips query index {i}")));
     }
-    Ok(sum.iter().zip(&cnt).map(|(s, &c)| s / c as f64).collect())
+    let mut out: Vec<f64> = sum.iter().zip(&cnt).map(|(s, &c)| if c > 0 { s / c as f64 } else { 0.0 }).collect();
+    let (a, b) = (out[first], out[last]);
+    out[..first].iter_mut().for_each(|v| *v = a);
+    out[last + 1..].iter_mut().for_each(|v| *v = b);
+    Ok(out)
 }
 
 /// Weighted Whittaker smoother with a second-difference penalty.
@@ -278,6 +289,7 @@ mod tests {
     fn raw_lag_averages_runs() {
         let path = [(0, 0), (0, 1), (0, 2), (1, 3), (2, 3), (3, 4)];
         assert_eq!(raw_lag(&path, 4).unwrap(), vec![1.0, 2.0, 1.0, 1.0]);
-        assert!(raw_lag(&path, 5).is_err());
+        assert_eq!(raw_lag(&path, 6).unwrap(), vec![1.0, 2.0, 1.0, 1.0, 1.0, 1.0]);
+        assert!(raw_lag(&[(0, 0), (2, 2)], 3).is_err());
     }
 }
