@@ -28,6 +28,8 @@
 pub mod align;
 pub mod error;
 pub mod output;
+pub mod protocol;
+pub mod report;
 pub mod session;
 pub mod simulate;
 

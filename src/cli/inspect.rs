@@ -17,17 +17,18 @@ pub struct Args {
 /// Runs the command.
 pub fn run(args: Args) -> mirrorsite::Result<ExitCode> {
     let s = session::read(&args.session)?;
-    let (blocks, source) = match &s.events {
-        Some(ev) => (ev.clone(), "events"),
-        None => (Vec::new(), "protocol"),
+    let (blocks, source) = mirrorsite::protocol::session_blocks(&s)?;
+    let source = match source {
+        session::BlockSource::Events => "events",
+        session::BlockSource::Protocol => "protocol",
     };
     let summary = Summary::new(&s, blocks, source);
     if args.json {
         let text = serde_json::to_string_pretty(&summary)
             .map_err(|e| mirrorsite::Error::Analysis(e.to_string()))?;
-        println!("{text}");
+        super::print_out(&(text + "\n"))?;
     } else {
-        print!("{}", summary.to_text());
+        super::print_out(&summary.to_text())?;
     }
     Ok(ExitCode::SUCCESS)
 }

@@ -5,6 +5,7 @@ use clap::{Parser, Subcommand};
 use std::process::ExitCode;
 
 mod inspect;
+mod protocol;
 mod simulate;
 
 /// Electrode-site selection for myoelectric hands from mirrored bilateral calibration sessions.
@@ -23,6 +24,20 @@ pub enum Command {
     Simulate(simulate::Args),
     /// Read and check a session folder and summarise it.
     Inspect(inspect::Args),
+    /// List, check, expand and play task protocols.
+    Protocol(protocol::Args),
+}
+
+/// Writes `text` to stdout; a closed pipe (e.g. `| head`) is not an error.
+pub fn print_out(text: &str) -> mirrorsite::Result<()> {
+    use std::io::Write;
+    let mut out = std::io::stdout().lock();
+    match out.write_all(text.as_bytes()).and_then(|_| out.flush()) {
+        Err(e) if e.kind() != std::io::ErrorKind::BrokenPipe => {
+            Err(mirrorsite::Error::io("standard output", e))
+        }
+        _ => Ok(()),
+    }
 }
 
 /// Runs one command.
@@ -30,5 +45,6 @@ pub fn run(cli: Cli) -> mirrorsite::Result<ExitCode> {
     match cli.command {
         Command::Simulate(a) => simulate::run(a),
         Command::Inspect(a) => inspect::run(a),
+        Command::Protocol(a) => protocol::run(a),
     }
 }

@@ -75,7 +75,9 @@ impl Summary {
                     site: site.id.clone(),
                     angle_deg: site.angle_deg,
                     distance_cm: site.distance_cm,
-                    rms_mv: (row.iter().map(|v| v * v).sum::<f64>() / n).sqrt(),
+                    rms_mv: crate::simulate::round6(
+                        (row.iter().map(|v| v * v).sum::<f64>() / n).sqrt(),
+                    ),
                 }
             })
             .collect();

@@ -38,7 +38,7 @@ pub const INFORMATIVE_SHARE: f64 = 0.3;
 /// ... and at least this absolute pickup.
 pub const INFORMATIVE_MIN: f64 = 0.1;
 /// A site is irrelevant when its best score for every direction is below this.
-pub const IRRELEVANT_MAX: f64 = 0.05;
+pub const IRRELEVANT_MAX: f64 = 0.01;
 
 /// A simulated session in memory.
 pub struct Simulated {
@@ -59,6 +59,7 @@ pub fn simulate(sc: &Scenario) -> Result<Simulated> {
     let mut rng = emg::stream(sc.seed, "movement");
     let mv = movement::build(sc, &mut rng);
     let act = movement::activations(sc, &mv);
+
     let sites = emg::site_positions(sc);
     let raw = emg::synthesize(sc, &sites, &act);
     let mut rng = emg::stream(sc.seed, "mirror");
@@ -209,7 +210,7 @@ fn build_truth(
     }
 }
 
-/// Rounds to 1e-6 (keeps files short and stable).
-pub(crate) fn round6(x: f64) -> f64 {
+/// Rounds to 1e-6 (keeps output files short and stable).
+pub fn round6(x: f64) -> f64 {
     (x * 1e6).round() / 1e6
 }

@@ -273,6 +273,14 @@ pub fn activations(sc: &Scenario, mv: &Movement) -> Vec<Vec<f64>> {
         .iter()
         .map(|m| {
             let mut a = vec![0.02; n];
+            if m.drives.is_empty() {
+                // a muscle serving no DoF: slow random activity of its own
+                let mut rng = super::emg::stream(sc.seed, &format!("idle:{}", m.id));
+                let idle = free_curve(&mut rng, n, mv.rate_hz, 0.0, -1.0, 1.0);
+                for (x, s) in a.iter_mut().zip(idle) {
+                    *x += 0.5 * s.max(0.0);
+                }
+            }
             for dr in &m.drives {
                 let dm = &demands[&(dr.dof.clone(), dr.direction)];
                 for i in 0..n {

@@ -94,7 +94,7 @@ impl Default for EmgSpec {
             units: EmgUnits::Millivolt,
             band_hz: [20.0, 250.0],
             muscle_rms_mv: 0.4,
-            baseline_rms_mv: 0.006,
+            baseline_rms_mv: 0.008,
             mains_hz: 50.0,
             mains_mv: 0.004,
             emd_s: 0.06,
@@ -228,7 +228,8 @@ pub struct MuscleSpec {
     /// Relative amplitude (1 = `emg.muscle_rms_mv` at full activation).
     #[serde(default = "one_f")]
     pub strength: f64,
-    /// What it drives; empty for a muscle irrelevant to every DoF.
+    /// What it drives; empty for a muscle irrelevant to every DoF, which is
+    /// then active at random, unrelated to any task.
     #[serde(default)]
     pub drives: Vec<Drive>,
 }
@@ -395,7 +396,7 @@ fn default_position_effect() -> f64 {
     0.5
 }
 fn default_spread() -> f64 {
-    1.8
+    1.5
 }
 fn default_period() -> f64 {
     4.0
