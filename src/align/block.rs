@@ -1,5 +1,7 @@
 //! Warping one task block: fit composites, DTW, smooth map; repeat; judge.
 
+#![allow(clippy::needless_range_loop)] // index loops mirror the formulas
+
 use super::config::AlignConfig;
 use super::dtw::{dtw_rows, Cost, DtwOptions, StepPattern};
 use super::features::{lerp_at, mean_sd, moving_average, nnls_intercept};
@@ -64,7 +66,10 @@ const SHARED: usize = 2;
 const MIN_FEATURE_CORR: f64 = 0.3;
 
 fn scaled(f: &[Vec<f64>], s: &[f64]) -> Vec<Vec<f64>> {
-    f.iter().zip(s).map(|(c, s)| c.iter().map(|v| v * s).collect()).collect()
+    f.iter()
+        .zip(s)
+        .map(|(c, s)| c.iter().map(|v| v * s).collect())
+        .collect()
 }
 
 fn pick_vals(v: &[f64], idx: &[usize]) -> Vec<f64> {
@@ -144,13 +149,21 @@ pub fn align_block(d: &BlockData, cfg: &AlignConfig) -> Result<BlockOutcome> {
         .collect();
     let env: Vec<Vec<f64>> = d.env.iter().map(|e| moving_average(e, ma)).collect();
     let at = |lag: &[f64], f: &[f64]| -> Vec<f64> {
-        (0..n).map(|i| lerp_at(f, (i + d.ext) as f64 + lag[i])).collect()
+        (0..n)
+            .map(|i| lerp_at(f, (i + d.ext) as f64 + lag[i]))
+            .collect()
     };
     let inner = |v: &[f64]| v[d.interior.0..d.interior.1].to_vec();
 
     // Coarse constant lag: total activity against total intact speed.
     let total_env = standard_sum(&env, n);
-    let speed = standard_sum(&d.channels.iter().map(|c| moving_average(&c.speed, ma)).collect::<Vec<_>>(), len);
+    let speed = standard_sum(
+        &d.channels
+            .iter()
+            .map(|c| moving_average(&c.speed, ma))
+            .collect::<Vec<_>>(),
+        len,
+    );
     let mut best = (f64::NEG_INFINITY, 0.0);
     let reach = r.min(d.ext) as i64;
     for l in -reach..=reach {
@@ -179,7 +192,11 @@ pub fn align_block(d: &BlockData, cfg: &AlignConfig) -> Result<BlockOutcome> {
             let nb = warped[0].len();
             let mut beta: Vec<Vec<f64>> = pair
                 .iter()
-                .map(|_| (0..nb).map(|m| if m < SHARED { 1.0 } else { 0.0 }).collect())
+                .map(|_| {
+                    (0..nb)
+                        .map(|m| if m < SHARED { 1.0 } else { 0.0 })
+                        .collect()
+                })
                 .collect();
             let mut comps = vec![Vec::new(); pair.len()];
             for _als in 0..4 {
@@ -199,7 +216,11 @@ pub fn align_block(d: &BlockData, cfg: &AlignConfig) -> Result<BlockOutcome> {
                         y[p * n + i] = comps[p][i] - my;
                     }
                     for m in 0..nb {
-                        let col = if m < SHARED { m } else { SHARED + p * (nb - SHARED) + (m - SHARED) };
+                        let col = if m < SHARED {
+                            m
+                        } else {
+                            SHARED + p * (nb - SHARED) + (m - SHARED)
+                        };
                         let (mm, _) = mean_sd(&warped[p][m]);
                         for i in 0..n {
                             cols[col][p * n + i] = warped[p][m][i] - mm;
@@ -212,7 +233,11 @@ pub fn align_block(d: &BlockData, cfg: &AlignConfig) -> Result<BlockOutcome> {
                 }
                 for p in 0..np {
                     for m in 0..nb {
-                        let col = if m < SHARED { m } else { SHARED + p * (nb - SHARED) + (m - SHARED) };
+                        let col = if m < SHARED {
+                            m
+                        } else {
+                            SHARED + p * (nb - SHARED) + (m - SHARED)
+                        };
                         beta[p][m] = coef[col];
                     }
                 }
@@ -221,7 +246,11 @@ pub fn align_block(d: &BlockData, cfg: &AlignConfig) -> Result<BlockOutcome> {
                 let target = combine(&warped[p], &beta[p], 0.0, n);
                 let a = &comps[p];
                 let rho = pearson(&inner(a), &inner(&target));
-                scale[c] = if rho.is_finite() && rho >= MIN_FEATURE_CORR { rho } else { 0.0 };
+                scale[c] = if rho.is_finite() && rho >= MIN_FEATURE_CORR {
+                    rho
+                } else {
+                    0.0
+                };
                 composite[c] = standardise(a, a);
                 let full = combine(&basis[c], &beta[p], 0.0, len);
                 intact[c] = standardise(&full, &full[d.ext..d.ext + n]);
@@ -230,7 +259,14 @@ pub fn align_block(d: &BlockData, cfg: &AlignConfig) -> Result<BlockOutcome> {
         if scale.iter().all(|&v| v == 0.0) {
             break;
         }
-        lag = warp(d, &scaled(&composite, &scale), &scaled(&intact, &scale), &opts, cfg, r)?;
+        lag = warp(
+            d,
+            &scaled(&composite, &scale),
+            &scaled(&intact, &scale),
+            &opts,
+            cfg,
+            r,
+        )?;
     }
     let used: Vec<usize> = (0..nc).filter(|&c| scale[c] > 0.0).collect();
     let pick = |f: &[Vec<f64>]| used.iter().map(|&c| f[c].clone()).collect::<Vec<_>>();
@@ -251,7 +287,13 @@ pub fn align_block(d: &BlockData, cfg: &AlignConfig) -> Result<BlockOutcome> {
         .map(|l| l / d.rate_hz)
         .collect();
     let limit_share = {
-        let w = dtw_rows(&rows(&composite, n), &rows(&intact_before, n), composite.len(), Cost::Squared, &opts)?;
+        let w = dtw_rows(
+            &rows(&composite, n),
+            &rows(&intact_before, n),
+            composite.len(),
+            Cost::Squared,
+            &opts,
+        )?;
         let inside: Vec<bool> = w
             .path
             .iter()
@@ -292,8 +334,17 @@ fn warp(
 ) -> Result<Vec<f64>> {
     let n = d.n;
     let c = composite.len();
-    let reference: Vec<Vec<f64>> = intact.iter().map(|f| f[d.ext..d.ext + n].to_vec()).collect();
-    let w = dtw_rows(&rows(composite, n), &rows(&reference, n), c, Cost::Squared, opts)?;
+    let reference: Vec<Vec<f64>> = intact
+        .iter()
+        .map(|f| f[d.ext..d.ext + n].to_vec())
+        .collect();
+    let w = dtw_rows(
+        &rows(composite, n),
+        &rows(&reference, n),
+        c,
+        Cost::Squared,
+        opts,
+    )?;
     let raw = raw_lag(&w.path, n)?;
     let weights = informativeness(d, composite, intact, &raw);
     let mut lag = whittaker(&raw, &weights, cfg.smooth_s * d.rate_hz)?;
@@ -306,7 +357,12 @@ fn warp(
 
 /// Weight of each window sample in the map smoother: where both sides
 /// change (geometric mean of the squared feature slopes), zero in the margins.
-fn informativeness(d: &BlockData, composite: &[Vec<f64>], intact: &[Vec<f64>], raw: &[f64]) -> Vec<f64> {
+fn informativeness(
+    d: &BlockData,
+    composite: &[Vec<f64>],
+    intact: &[Vec<f64>],
+    raw: &[f64],
+) -> Vec<f64> {
     let n = d.n;
     let slope2 = |f: &dyn Fn(f64) -> f64, i: usize| -> f64 {
         let u = i as f64;
@@ -386,7 +442,11 @@ fn null_corr(
     let lag = warp(d, composite, &shifted, opts, cfg, r)?;
     let after: Vec<Vec<f64>> = shifted
         .iter()
-        .map(|f| (0..n).map(|i| lerp_at(f, (i + d.ext) as f64 + lag[i])).collect())
+        .map(|f| {
+            (0..n)
+                .map(|i| lerp_at(f, (i + d.ext) as f64 + lag[i]))
+                .collect()
+        })
         .collect();
     Ok(stacked_corr(composite, &after, d.interior))
 }

@@ -50,7 +50,7 @@ impl Default for AlignConfig {
             feature_smooth_s: 0.05,
             kinematics_smooth_s: 0.03,
             min_speed_dps: 5.0,
-            side_penalty: 0.5,
+            side_penalty: 1.0,
             rounds: 3,
             quality: QualityThresholds::default(),
         }
@@ -123,7 +123,7 @@ impl Default for QualityThresholds {
         QualityThresholds {
             fail_corr: 0.5,
             ok_corr: 0.75,
-            min_excess_over_null: 0.15,
+            min_excess_over_null: 0.3,
             min_gain: 0.02,
             already_aligned_corr: 0.9,
             max_share_at_limit: 0.25,

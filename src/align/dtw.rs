@@ -161,6 +161,9 @@ impl Step {
     }
 }
 
+/// A step in the flat layout: origin offset, side penalty, (cell offset, weight).
+type StepOffsets = (isize, f64, Vec<(isize, f64)>);
+
 /// The result of a DTW.
 #[derive(Debug, Clone, PartialEq)]
 pub struct Warp {
@@ -427,7 +430,7 @@ impl Grid {
         }
         // Offsets of each step's cells in the flat layout, relative to the target.
         let s = grid.stride as isize;
-        let offs: Vec<(isize, f64, Vec<(isize, f64)>)> = steps
+        let offs: Vec<StepOffsets> = steps
             .iter()
             .map(|st| {
                 let o = |a: usize, b: usize| -(a as isize) * s + (a as isize - b as isize);

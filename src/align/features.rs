@@ -14,6 +14,8 @@
 //! the sites that mark that event, whichever they are. Both sides are then
 //! standardised by the intact feature's mean and standard deviation.
 
+#![allow(clippy::needless_range_loop)] // index loops mirror the formulas
+
 /// Zero-phase moving average over `w` samples (odd; 1 leaves `x` unchanged).
 pub fn moving_average(x: &[f64], w: usize) -> Vec<f64> {
     let n = x.len();
@@ -187,7 +189,10 @@ mod tests {
 
     #[test]
     fn helpers() {
-        assert_eq!(moving_average(&[0.0, 3.0, 0.0, 3.0], 3), vec![1.5, 1.0, 2.0, 1.5]);
+        assert_eq!(
+            moving_average(&[0.0, 3.0, 0.0, 3.0], 3),
+            vec![1.5, 1.0, 2.0, 1.5]
+        );
         assert_eq!(lerp_at(&[0.0, 10.0, 20.0], 1.25), 12.5);
         assert_eq!(lerp_at(&[0.0, 10.0], 5.0), 10.0);
     }

@@ -99,7 +99,10 @@ impl Kinematics {
         if tau >= t[n - 1] {
             return (p[n - 1], 0.0);
         }
-        let k = t.partition_point(|&x| x <= tau).saturating_sub(1).min(n - 2);
+        let k = t
+            .partition_point(|&x| x <= tau)
+            .saturating_sub(1)
+            .min(n - 2);
         let h = t[k + 1] - t[k];
         let s = (tau - t[k]) / h;
         // Cubic Hermite basis and derivatives.
@@ -147,6 +150,9 @@ mod tests {
         let w = std::f64::consts::PI;
         let (p, v) = k.at(1, 2.005);
         assert!((p - 40.0 * (w * 2.005).sin()).abs() < 0.05, "{p}");
-        assert!((v - 40.0 * w * (w * 2.005).cos()).abs() < 0.005 * 40.0 * w, "{v}");
+        assert!(
+            (v - 40.0 * w * (w * 2.005).cos()).abs() < 0.005 * 40.0 * w,
+            "{v}"
+        );
     }
 }

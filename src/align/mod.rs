@@ -28,6 +28,7 @@ mod config;
 pub mod dtw;
 pub mod features;
 pub mod kinematics;
+/// Writers of `aligned.csv`, `alignment.json` and the before/after figures.
 pub mod output;
 pub mod quality;
 pub mod warpmap;
@@ -146,7 +147,9 @@ pub fn align(s: &Session, env: &Envelopes, blocks: &[Block], cfg: &AlignConfig) 
     let n = env.len();
     let rate = env.rate_hz;
     if n < 2 || !(rate.is_finite() && rate > 0.0) {
-        return Err(Error::Analysis("the envelopes have fewer than two samples".into()));
+        return Err(Error::Analysis(
+            "the envelopes have fewer than two samples".into(),
+        ));
     }
     let offset = s.manifest.intact_offset_s;
     let dofs: Vec<String> = s.dofs().iter().map(|d| d.id.clone()).collect();
@@ -167,12 +170,17 @@ pub fn align(s: &Session, env: &Envelopes, blocks: &[Block], cfg: &AlignConfig) 
     let mut out_blocks = Vec::with_capacity(blocks.len());
 
     for (bi, b) in blocks.iter().enumerate() {
-        let (a, e) = (idx_of(b.start_s), idx_of(b.end_s).max(idx_of(b.start_s) + 1).min(n));
+        let (a, e) = (
+            idx_of(b.start_s),
+            idx_of(b.end_s).max(idx_of(b.start_s) + 1).min(n),
+        );
         for slot in block_of.iter_mut().take(e).skip(a) {
             *slot = Some(bi);
         }
         let speed_rms = |d: usize| -> f64 {
-            let m = (a..e).map(|i| kin.at(d, t_of(i) - offset).1.powi(2)).sum::<f64>();
+            let m = (a..e)
+                .map(|i| kin.at(d, t_of(i) - offset).1.powi(2))
+                .sum::<f64>();
             (m / (e - a).max(1) as f64).sqrt()
         };
         if b.is_rest() {
@@ -181,9 +189,21 @@ pub fn align(s: &Session, env: &Envelopes, blocks: &[Block], cfg: &AlignConfig) 
                 .map(|d| dofs[d].as_str())
                 .collect();
             let (q, reasons) = if moving.is_empty() {
-                (Verdict::Ok, vec!["rest: nothing to warp; lag interpolated from the neighbouring blocks".into()])
+                (
+                    Verdict::Ok,
+                    vec![
+                        "rest: nothing to warp; lag interpolated from the neighbouring blocks"
+                            .into(),
+                    ],
+                )
             } else {
-                (Verdict::Doubtful, vec![format!("rest block, but the intact side moves ({})", moving.join(", "))])
+                (
+                    Verdict::Doubtful,
+                    vec![format!(
+                        "rest block, but the intact side moves ({})",
+                        moving.join(", ")
+                    )],
+                )
             };
             out_blocks.push(BlockAlignment {
                 block: b.clone(),
@@ -235,7 +255,10 @@ pub fn align(s: &Session, env: &Envelopes, blocks: &[Block], cfg: &AlignConfig) 
         let site_rows: Vec<Vec<f64>> = (0..env.sites.len())
             .map(|k| {
                 let row = env.data.row(k);
-                let row = row.as_slice().map(|s| s.to_vec()).unwrap_or_else(|| row.to_vec());
+                let row = row
+                    .as_slice()
+                    .map(|s| s.to_vec())
+                    .unwrap_or_else(|| row.to_vec());
                 (w0..w1).map(|i| lerp_at(&row, i as f64 - emd)).collect()
             })
             .collect();
@@ -249,7 +272,10 @@ pub fn align(s: &Session, env: &Envelopes, blocks: &[Block], cfg: &AlignConfig) 
                 let h = ((0.5 * rate) as usize).min((e - a) / 4).max(1);
                 (a..a + h).chain(e - h..e).collect()
             };
-            let rest: Vec<f64> = edge.iter().map(|&i| kin.at(d, t_of(i) - offset).0).collect();
+            let rest: Vec<f64> = edge
+                .iter()
+                .map(|&i| kin.at(d, t_of(i) - offset).0)
+                .collect();
             let rest = quality::quantile(&rest, 0.5);
             let [lo, hi] = s.dofs()[d].range_deg;
             let samples: Vec<(f64, f64)> = (0..wn + 2 * ext)
@@ -258,7 +284,9 @@ pub fn align(s: &Session, env: &Envelopes, blocks: &[Block], cfg: &AlignConfig) 
                     kin.at(d, t - offset)
                 })
                 .collect();
-            let series = |f: &dyn Fn(f64, f64) -> f64| -> Vec<f64> { samples.iter().map(|&(p, v)| f(p, v)).collect() };
+            let series = |f: &dyn Fn(f64, f64) -> f64| -> Vec<f64> {
+                samples.iter().map(|&(p, v)| f(p, v)).collect()
+            };
             let z = |p: f64| ((p - lo) / (hi - lo)).clamp(0.0, 1.0);
             let ret = cfg.min_speed_dps;
             for (sign, word) in [(1.0, "positive"), (-1.0, "negative")] {
@@ -294,7 +322,13 @@ pub fn align(s: &Session, env: &Envelopes, blocks: &[Block], cfg: &AlignConfig) 
             for k in 0..wn {
                 let i = w0 + k;
                 // 1 inside the block, a raised-cosine fade over `taper` samples outside it.
-                let dist = if i < a { a - i } else if i >= e { i + 1 - e } else { 0 };
+                let dist = if i < a {
+                    a - i
+                } else if i >= e {
+                    i + 1 - e
+                } else {
+                    0
+                };
                 if dist > taper {
                     continue;
                 }
@@ -327,10 +361,7 @@ pub fn align(s: &Session, env: &Envelopes, blocks: &[Block], cfg: &AlignConfig) 
         .collect();
     let mut lag = interpolate_gaps(&known);
     // Keep the joined map strictly increasing within the slope limits.
-    let ones = vec![1.0; n];
-    let before: Vec<f64> = lag.clone();
     limit_steps(&mut lag, rate, cfg.max_slope);
-    debug_assert_eq!(before.len(), ones.len());
 
     let mut time_s = Vec::with_capacity(n);
     let mut intact_time_s = Vec::with_capacity(n);

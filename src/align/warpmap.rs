@@ -41,7 +41,11 @@ pub fn raw_lag(path: &[(usize, usize)], n: usize) -> Result<Vec<f64>> {
     if let Some(i) = (first..=last).find(|&i| cnt[i] == 0) {
         return Err(Error::Argument(format!("the path skips query index {i}")));
     }
-    let mut out: Vec<f64> = sum.iter().zip(&cnt).map(|(s, &c)| if c > 0 { s / c as f64 } else { 0.0 }).collect();
+    let mut out: Vec<f64> = sum
+        .iter()
+        .zip(&cnt)
+        .map(|(s, &c)| if c > 0 { s / c as f64 } else { 0.0 })
+        .collect();
     let (a, b) = (out[first], out[last]);
     out[..first].iter_mut().for_each(|v| *v = a);
     out[last + 1..].iter_mut().for_each(|v| *v = b);
@@ -107,7 +111,7 @@ pub fn whittaker(y: &[f64], w: &[f64], period: f64) -> Result<Vec<f64>> {
         if i >= 2 {
             di -= l2[i - 2] * l2[i - 2] * d[i - 2];
         }
-        if !(di > 0.0) {
+        if di.is_nan() || di <= 0.0 {
             return Err(Error::Analysis("the warp-map smoother is singular".into()));
         }
         d[i] = di;
@@ -289,7 +293,10 @@ mod tests {
     fn raw_lag_averages_runs() {
         let path = [(0, 0), (0, 1), (0, 2), (1, 3), (2, 3), (3, 4)];
         assert_eq!(raw_lag(&path, 4).unwrap(), vec![1.0, 2.0, 1.0, 1.0]);
-        assert_eq!(raw_lag(&path, 6).unwrap(), vec![1.0, 2.0, 1.0, 1.0, 1.0, 1.0]);
+        assert_eq!(
+            raw_lag(&path, 6).unwrap(),
+            vec![1.0, 2.0, 1.0, 1.0, 1.0, 1.0]
+        );
         assert!(raw_lag(&[(0, 0), (2, 2)], 3).is_err());
     }
 }

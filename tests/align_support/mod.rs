@@ -54,11 +54,16 @@ pub fn rms_envelopes(s: &Session, rate_hz: f64) -> Envelopes {
 /// |intact_time_s − true intact time| over all usable rows in non-rest,
 /// mirrored blocks (holds included), in seconds.
 pub fn errors(al: &Aligned, truth: &Truth) -> Vec<f64> {
+    errors_in(al, truth, |_| true)
+}
+
+/// As [`errors`], over the blocks whose task passes `keep`.
+pub fn errors_in(al: &Aligned, truth: &Truth, keep: impl Fn(&str) -> bool) -> Vec<f64> {
     let mut e = Vec::new();
     for i in 0..al.len() {
         let Some(b) = al.block_of[i] else { continue };
         let blk = &al.blocks[b].block;
-        if blk.is_rest() || !al.usable[i] {
+        if blk.is_rest() || !al.usable[i] || !keep(&blk.task) {
             continue;
         }
         let mid = 0.5 * (blk.start_s + blk.end_s);
