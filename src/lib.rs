@@ -26,11 +26,13 @@
 #![warn(missing_docs)]
 
 pub mod align;
+pub mod config;
 pub mod error;
 pub mod output;
 pub mod protocol;
 pub mod report;
 pub mod session;
+pub mod signal;
 pub mod simulate;
 
 pub use error::{Error, InputError, InputErrorKind, Result};

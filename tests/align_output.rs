@@ -13,7 +13,7 @@ fn writes_aligned_csv_json_and_figures() {
         Path::new("tests/fixtures/align/scenario-offset.toml"),
         dir.path(),
     );
-    let env = rms_envelopes(&s, 100.0);
+    let env = signal_envelopes(&s);
     let blocks = s.events.clone().unwrap();
     let cfg = AlignConfig::default();
     let al = align(&s, &env, &blocks, &cfg).unwrap();

@@ -1,5 +1,6 @@
 //! Settings of the alignment stage (the `align` section of the analysis configuration).
 
+use crate::config::ConfigSection;
 use serde::{Deserialize, Serialize};
 
 /// Alignment settings. Every key has a default, so an empty section is valid.
@@ -65,13 +66,16 @@ impl AlignConfig {
             .max(0.0)
     }
 
-    /// Checks ranges; returns what is wrong, if anything.
-    pub fn check(&self) -> Result<(), String> {
+    /// Checks ranges; on failure the key (inside the section) and what is wrong.
+    pub fn check(&self) -> Result<(), (String, String)> {
         let pos = |v: f64, name: &str| {
             if v.is_finite() && v > 0.0 {
                 Ok(())
             } else {
-                Err(format!("align.{name} must be a positive number, got {v}"))
+                Err((
+                    name.to_string(),
+                    format!("must be a positive number, got {v}"),
+                ))
             }
         };
         pos(self.band_s, "band_s")?;
@@ -79,21 +83,31 @@ impl AlignConfig {
         pos(self.feature_smooth_s, "feature_smooth_s")?;
         pos(self.kinematics_smooth_s, "kinematics_smooth_s")?;
         if !(self.max_slope.is_finite() && self.max_slope > 1.0) {
-            return Err(format!(
-                "align.max_slope must be above 1, got {}",
-                self.max_slope
+            return Err((
+                "max_slope".into(),
+                format!("must be above 1, got {}", self.max_slope),
             ));
         }
         if !(self.emd_s.is_finite() && (0.0..=0.3).contains(&self.emd_s)) {
-            return Err(format!(
-                "align.emd_s must lie in 0..0.3 s, got {}",
-                self.emd_s
+            return Err((
+                "emd_s".into(),
+                format!("must lie in 0..0.3 s, got {}", self.emd_s),
             ));
         }
-        if self.rounds == 0 {
-            return Err("align.rounds must be at least 1".into());
+        if !(self.side_penalty.is_finite() && self.side_penalty >= 0.0) {
+            return Err(("side_penalty".into(), "must be a number ≥ 0".into()));
         }
-        self.quality.check()
+        if let Some(m) = self.margin_s {
+            if !(m.is_finite() && m >= 0.0) {
+                return Err(("margin_s".into(), "must be a number ≥ 0".into()));
+            }
+        }
+        if self.rounds == 0 {
+            return Err(("rounds".into(), "must be at least 1".into()));
+        }
+        self.quality
+            .check()
+            .map_err(|(k, m)| (format!("quality.{k}"), m))
     }
 }
 
@@ -133,12 +147,12 @@ impl Default for QualityThresholds {
 }
 
 impl QualityThresholds {
-    fn check(&self) -> Result<(), String> {
+    fn check(&self) -> Result<(), (String, String)> {
         let unit = |v: f64, name: &str| {
             if v.is_finite() && (0.0..=1.0).contains(&v) {
                 Ok(())
             } else {
-                Err(format!("align.quality.{name} must lie in 0..1, got {v}"))
+                Err((name.to_string(), format!("must lie in 0..1, got {v}")))
             }
         };
         unit(self.fail_corr, "fail_corr")?;
@@ -149,8 +163,34 @@ impl QualityThresholds {
         unit(self.max_share_at_limit, "max_share_at_limit")?;
         unit(self.band_edge_share, "band_edge_share")?;
         if self.fail_corr > self.ok_corr {
-            return Err("align.quality.fail_corr must not exceed ok_corr".into());
+            return Err(("fail_corr".into(), "must not exceed ok_corr".into()));
         }
         Ok(())
     }
+}
+
+impl ConfigSection for AlignConfig {
+    const NAME: &'static str = "align";
+    const ABOUT: &'static str = "Time-warping the intact-side kinematics onto the EMG clock: \
+band, slope limit, expected electro-mechanical delay, map smoothing and the block verdict.";
+    const KEYS: &'static [(&'static str, &'static str)] = &[
+        ("band_s", "Largest plausible mirroring lag in s: the Sakoe-Chiba band of the DTW is +- this. No published mirrored-training lag found (FACTS.md section 4); 0.5 s covers delayed-feedback studies (Imaizumi et al. 2014)."),
+        ("max_slope", "Largest local slope of the warp (its inverse the smallest): 2.0 is Sakoe & Chiba's symmetric P = 1 pattern (1978), 1.5 is P = 2."),
+        ("emd_s", "Expected electro-mechanical delay in s: the EMG is shifted later by this before matching, so the aligned intact time is that of the intended posture. Literature 30-100 ms (Cavanagh & Komi 1979; FACTS.md section 2)."),
+        ("margin_s", "Context on each side of a block in s (default band_s / (max_slope - 1)): room for the path to settle."),
+        ("smooth_s", "Half-gain period in s of the Whittaker smoother that turns the DTW path into the map (Eilers 2003). Common practice, no source."),
+        ("feature_smooth_s", "Moving-average width in s applied to both sides' alignment features. Common practice, no source."),
+        ("kinematics_smooth_s", "Gaussian sigma in s of the local linear smoother of the intact angles (damps glove noise in the velocity). Common practice, no source."),
+        ("min_speed_dps", "RMS intact speed in deg/s below which a DoF counts as still in a block. Common practice, no source."),
+        ("side_penalty", "Cost added to each compression or expansion step of the DTW (in standardised squared feature units), so the path leaves the diagonal only where the features pay for it; as dtaidistance's penalty squared. Tuned on simulated sessions."),
+        ("rounds", "Fit-warp rounds: composites refitted through the map and warped again."),
+        ("quality", "Thresholds of the per-block verdict ok / doubtful / failed."),
+        ("quality.fail_corr", "Feature correlation after warping below which a block fails."),
+        ("quality.ok_corr", "Feature correlation after warping below which a block is doubtful."),
+        ("quality.min_excess_over_null", "A block fails unless warping onto its own intact side beats warping onto an unrelated, time-shifted stretch of it by this much correlation (a block that was not mirrored matches no better than chance)."),
+        ("quality.min_gain", "Correlation gain below which warping is said to gain nothing (doubtful)."),
+        ("quality.already_aligned_corr", "Correlation before warping at or above which a small gain is no concern."),
+        ("quality.max_share_at_limit", "Share of the block at the slope limits above which it is doubtful."),
+        ("quality.band_edge_share", "Median lag beyond this share of the band: doubtful (the true lag may lie outside)."),
+    ];
 }

@@ -57,6 +57,17 @@ pub struct Envelopes {
     pub data: Array2<f64>,
 }
 
+impl From<&crate::signal::Conditioned> for Envelopes {
+    fn from(c: &crate::signal::Conditioned) -> Self {
+        Envelopes {
+            t0_s: c.time_s.first().copied().unwrap_or(0.0),
+            rate_hz: c.rate_hz,
+            sites: c.sites.clone(),
+            data: c.envelopes.clone(),
+        }
+    }
+}
+
 impl Envelopes {
     /// Number of samples.
     pub fn len(&self) -> usize {
@@ -143,7 +154,8 @@ impl Aligned {
 
 /// Aligns a session's intact side onto its EMG envelopes, block by block.
 pub fn align(s: &Session, env: &Envelopes, blocks: &[Block], cfg: &AlignConfig) -> Result<Aligned> {
-    cfg.check().map_err(Error::Argument)?;
+    cfg.check()
+        .map_err(|(k, m)| Error::Argument(format!("align.{k} {m}")))?;
     let n = env.len();
     let rate = env.rate_hz;
     if n < 2 || !(rate.is_finite() && rate > 0.0) {

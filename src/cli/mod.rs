@@ -4,6 +4,8 @@
 use clap::{Parser, Subcommand};
 use std::process::ExitCode;
 
+mod align;
+mod config;
 mod inspect;
 mod protocol;
 mod simulate;
@@ -24,8 +26,12 @@ pub enum Command {
     Simulate(simulate::Args),
     /// Read and check a session folder and summarise it.
     Inspect(inspect::Args),
+    /// Print or check the analysis configuration file.
+    Config(config::Args),
     /// List, check, expand and play task protocols.
     Protocol(protocol::Args),
+    /// Time-warp the intact side onto the EMG clock: aligned.csv, alignment.json, figures.
+    Align(align::Args),
 }
 
 /// Writes `text` to stdout; a closed pipe (e.g. `| head`) is not an error.
@@ -45,6 +51,8 @@ pub fn run(cli: Cli) -> mirrorsite::Result<ExitCode> {
     match cli.command {
         Command::Simulate(a) => simulate::run(a),
         Command::Inspect(a) => inspect::run(a),
+        Command::Config(a) => config::run(a),
         Command::Protocol(a) => protocol::run(a),
+        Command::Align(a) => align::run(a),
     }
 }

@@ -20,6 +20,14 @@ pub fn simulate(scenario: &Path, dir: &Path) -> (Session, Truth) {
     (s, t)
 }
 
+/// The conditioning stage's envelopes with default settings (the shipped pipeline).
+pub fn signal_envelopes(s: &Session) -> Envelopes {
+    let blocks = s.events.clone().unwrap_or_default();
+    let cond =
+        mirrorsite::signal::condition(&s.emg, s.sites(), &blocks, &Default::default()).unwrap();
+    Envelopes::from(&cond)
+}
+
 /// A plain moving-RMS envelope (±50 ms, mean removed) at `rate_hz`: the
 /// stand-in for the conditioning stage's envelopes in these tests.
 pub fn rms_envelopes(s: &Session, rate_hz: f64) -> Envelopes {
