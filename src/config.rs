@@ -9,6 +9,7 @@
 //! [`ConfigSection`]; adding a stage means adding a field to [`Config`]
 //! and a line to [`Config::defaults_toml`] and [`Config::validate`].
 
+use crate::align::AlignConfig;
 use crate::error::{Error, InputError, InputErrorKind, Result};
 use crate::signal::SignalConfig;
 use serde::{Deserialize, Serialize};
@@ -31,6 +32,8 @@ pub trait ConfigSection: Serialize + Default {
 pub struct Config {
     /// Signal conditioning and channel quality.
     pub signal: SignalConfig,
+    /// Alignment of the intact side onto the EMG clock.
+    pub align: AlignConfig,
 }
 
 impl Config {
@@ -59,7 +62,10 @@ impl Config {
     pub fn validate(&self) -> std::result::Result<(), (String, String)> {
         self.signal
             .validate()
-            .map_err(|e| (format!("{}.{}", SignalConfig::NAME, e.key), e.message))
+            .map_err(|e| (format!("{}.{}", SignalConfig::NAME, e.key), e.message))?;
+        self.align
+            .check()
+            .map_err(|(k, m)| (format!("{}.{k}", AlignConfig::NAME), m))
     }
 
     /// The default configuration as commented TOML: every key with its
@@ -71,6 +77,7 @@ impl Config {
              # Unknown keys are errors.\n",
         );
         render_section::<SignalConfig>(&mut out);
+        render_section::<AlignConfig>(&mut out);
         out
     }
 }
