@@ -9,6 +9,7 @@
 //! [`ConfigSection`]; adding a stage means adding a field to [`Config`]
 //! and a line to [`Config::defaults_toml`] and [`Config::validate`].
 
+use crate::align::AlignConfig;
 use crate::error::{Error, InputError, InputErrorKind, Result};
 use crate::select::SelectConfig;
 use crate::signal::SignalConfig;
@@ -32,6 +33,8 @@ pub trait ConfigSection: Serialize + Default {
 pub struct Config {
     /// Signal conditioning and channel quality.
     pub signal: SignalConfig,
+    /// Alignment of the intact side onto the EMG clock.
+    pub align: AlignConfig,
     /// Per-DoF selection.
     pub select: SelectConfig,
 }
@@ -63,6 +66,9 @@ impl Config {
         self.signal
             .validate()
             .map_err(|e| (format!("{}.{}", SignalConfig::NAME, e.key), e.message))?;
+        self.align
+            .check()
+            .map_err(|(k, m)| (format!("{}.{k}", AlignConfig::NAME), m))?;
         self.select
             .check()
             .map_err(|(k, m)| (format!("{}.{k}", SelectConfig::NAME), m))
@@ -77,6 +83,7 @@ impl Config {
              # Unknown keys are errors.\n",
         );
         render_section::<SignalConfig>(&mut out);
+        render_section::<AlignConfig>(&mut out);
         render_section::<SelectConfig>(&mut out);
         out
     }

@@ -25,6 +25,7 @@
 
 #![warn(missing_docs)]
 
+pub mod align;
 pub mod config;
 pub mod error;
 pub mod output;

@@ -4,6 +4,7 @@
 use clap::{Parser, Subcommand};
 use std::process::ExitCode;
 
+mod align;
 mod config;
 mod inspect;
 mod protocol;
@@ -29,6 +30,8 @@ pub enum Command {
     Config(config::Args),
     /// List, check, expand and play task protocols.
     Protocol(protocol::Args),
+    /// Time-warp the intact side onto the EMG clock: aligned.csv, alignment.json, figures.
+    Align(align::Args),
 }
 
 /// Writes `text` to stdout; a closed pipe (e.g. `| head`) is not an error.
@@ -50,5 +53,6 @@ pub fn run(cli: Cli) -> mirrorsite::Result<ExitCode> {
         Command::Inspect(a) => inspect::run(a),
         Command::Config(a) => config::run(a),
         Command::Protocol(a) => protocol::run(a),
+        Command::Align(a) => align::run(a),
     }
 }

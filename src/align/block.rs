@@ -1,0 +1,452 @@
+//! Warping one task block: fit composites, DTW, smooth map; repeat; judge.
+
+#![allow(clippy::needless_range_loop)] // index loops mirror the formulas
+
+use super::config::AlignConfig;
+use super::dtw::{dtw_rows, Cost, DtwOptions, StepPattern};
+use super::features::{lerp_at, mean_sd, moving_average, nnls_intercept};
+use super::quality::{pearson, quantile, Figures};
+use super::warpmap::{limit_slope, raw_lag, whittaker};
+use crate::Result;
+
+/// One block's data on the feature grid (EMG clock).
+#[derive(Debug, Clone)]
+pub struct BlockData {
+    /// Grid rate, Hz.
+    pub rate_hz: f64,
+    /// Window length in samples (the block plus its margins).
+    pub n: usize,
+    /// The block proper within the window: samples `interior.0 .. interior.1`.
+    pub interior: (usize, usize),
+    /// Envelopes shifted later by the expected EMD, per site, `n` samples each.
+    pub env: Vec<Vec<f64>>,
+    /// Intact-side channels on the extended grid: window sample i is index i + `ext`.
+    pub channels: Vec<Channel>,
+    /// Extension of the intact grid beyond each end of the window, samples.
+    pub ext: usize,
+}
+
+/// One alignment channel: an intact-side model of one composite EMG activation.
+///
+/// The channel's intact feature is φ(τ) = Σ_m β_m B_m(τ) with β ≥ 0 fitted
+/// together with the composite (alternating non-negative least squares), so
+/// that a position-dependent effort (activation per unit speed changing with
+/// posture) and holding effort do not pass for a timing difference.
+#[derive(Debug, Clone)]
+pub struct Channel {
+    /// Label for figures (`<dof> <direction>`).
+    pub label: String,
+    /// Basis series B_m on the extended grid; the first carries the speed.
+    pub basis: Vec<Vec<f64>>,
+    /// Directional speed on the extended grid (for the coarse lag).
+    pub speed: Vec<f64>,
+}
+
+/// What warping one block gives.
+#[derive(Debug, Clone)]
+pub struct BlockOutcome {
+    /// Labels of the channels that took part.
+    pub labels: Vec<String>,
+    /// Lag (intact time − EMG time) at every window sample, in samples.
+    pub lag: Vec<f64>,
+    /// Quality figures over the block proper.
+    pub figures: Figures,
+    /// Composite activations (standardised like the intact features), per feature, window samples.
+    pub composite: Vec<Vec<f64>>,
+    /// Standardised intact features on the window before warping.
+    pub intact_before: Vec<Vec<f64>>,
+    /// Standardised intact features through the final map.
+    pub intact_after: Vec<Vec<f64>>,
+}
+
+/// Number of leading basis series (speed times effort) shared by the two directions of a DoF.
+const SHARED: usize = 2;
+
+/// Smallest correlation between a composite and its intact feature for the feature to take part.
+const MIN_FEATURE_CORR: f64 = 0.3;
+
+fn scaled(f: &[Vec<f64>], s: &[f64]) -> Vec<Vec<f64>> {
+    f.iter()
+        .zip(s)
+        .map(|(c, s)| c.iter().map(|v| v * s).collect())
+        .collect()
+}
+
+fn pick_vals(v: &[f64], idx: &[usize]) -> Vec<f64> {
+    idx.iter().map(|&i| v[i]).collect()
+}
+
+/// Sum of standardised series.
+fn standard_sum(f: &[Vec<f64>], len: usize) -> Vec<f64> {
+    let mut t = vec![0.0; len];
+    for e in f {
+        let (m, sd) = mean_sd(e);
+        for i in 0..len.min(e.len()) {
+            t[i] += (e[i] - m) / sd.max(1e-12);
+        }
+    }
+    t
+}
+
+/// b + Σ_m w_m f_m over `len` samples.
+fn combine(f: &[Vec<f64>], w: &[f64], b: f64, len: usize) -> Vec<f64> {
+    let mut out = vec![b; len];
+    for (s, &w) in f.iter().zip(w) {
+        if w != 0.0 {
+            for i in 0..len {
+                out[i] += w * s[i];
+            }
+        }
+    }
+    out
+}
+
+/// (x − mean(ref)) / sd(ref).
+fn standardise(x: &[f64], reference: &[f64]) -> Vec<f64> {
+    let (m, sd) = mean_sd(reference);
+    x.iter().map(|v| (v - m) / sd.max(1e-12)).collect()
+}
+
+fn odd(w: f64) -> usize {
+    (w.round().max(1.0) as usize) | 1
+}
+
+/// Stacks features row-wise (sample i: all features) for the DTW.
+fn rows(f: &[Vec<f64>], n: usize) -> Vec<f64> {
+    let mut out = Vec::with_capacity(n * f.len());
+    for i in 0..n {
+        for c in f {
+            out.push(c[i]);
+        }
+    }
+    out
+}
+
+fn stacked_corr(a: &[Vec<f64>], b: &[Vec<f64>], r: (usize, usize)) -> f64 {
+    let x: Vec<f64> = a.iter().flat_map(|c| c[r.0..r.1].iter().copied()).collect();
+    let y: Vec<f64> = b.iter().flat_map(|c| c[r.0..r.1].iter().copied()).collect();
+    pearson(&x, &y)
+}
+
+/// Warps one block.
+pub fn align_block(d: &BlockData, cfg: &AlignConfig) -> Result<BlockOutcome> {
+    let n = d.n;
+    let r = (cfg.band_s * d.rate_hz).round().max(1.0) as usize;
+    let ma = odd(cfg.feature_smooth_s * d.rate_hz);
+    let pattern = StepPattern::from_max_slope(cfg.max_slope)?;
+    let opts = DtwOptions {
+        band: Some(r.min(n.saturating_sub(1)).max(1)),
+        pattern,
+        path: true,
+        side_penalty: cfg.side_penalty,
+        open_ends: true,
+    };
+    let len = n + 2 * d.ext;
+    let basis: Vec<Vec<Vec<f64>>> = d
+        .channels
+        .iter()
+        .map(|c| c.basis.iter().map(|f| moving_average(f, ma)).collect())
+        .collect();
+    let env: Vec<Vec<f64>> = d.env.iter().map(|e| moving_average(e, ma)).collect();
+    let at = |lag: &[f64], f: &[f64]| -> Vec<f64> {
+        (0..n)
+            .map(|i| lerp_at(f, (i + d.ext) as f64 + lag[i]))
+            .collect()
+    };
+    let inner = |v: &[f64]| v[d.interior.0..d.interior.1].to_vec();
+
+    // Coarse constant lag: total activity against total intact speed.
+    let total_env = standard_sum(&env, n);
+    let speed = standard_sum(
+        &d.channels
+            .iter()
+            .map(|c| moving_average(&c.speed, ma))
+            .collect::<Vec<_>>(),
+        len,
+    );
+    let mut best = (f64::NEG_INFINITY, 0.0);
+    let reach = r.min(d.ext) as i64;
+    for l in -reach..=reach {
+        let lag = vec![l as f64; n];
+        let c = pearson(&total_env, &at(&lag, &speed));
+        if c.is_finite() && c > best.0 {
+            best = (c, l as f64);
+        }
+    }
+    let mut lag = vec![best.1; n];
+
+    let nc = d.channels.len();
+    let mut composite: Vec<Vec<f64>> = vec![Vec::new(); nc];
+    let mut intact: Vec<Vec<f64>> = vec![Vec::new(); nc];
+    let mut scale = vec![0.0; nc];
+    for _round in 0..cfg.rounds {
+        // Channels come in pairs (the two directions of one DoF) that share
+        // the position-dependent effort: a skew that one direction could
+        // mistake for a timing change shows with the opposite sign in the other.
+        for first in (0..nc).step_by(2) {
+            let pair: Vec<usize> = (first..(first + 2).min(nc)).collect();
+            let warped: Vec<Vec<Vec<f64>>> = pair
+                .iter()
+                .map(|&c| basis[c].iter().map(|f| at(&lag, f)).collect())
+                .collect();
+            let nb = warped[0].len();
+            let mut beta: Vec<Vec<f64>> = pair
+                .iter()
+                .map(|_| {
+                    (0..nb)
+                        .map(|m| if m < SHARED { 1.0 } else { 0.0 })
+                        .collect()
+                })
+                .collect();
+            let mut comps = vec![Vec::new(); pair.len()];
+            for _als in 0..4 {
+                for (p, _) in pair.iter().enumerate() {
+                    let target = combine(&warped[p], &beta[p], 0.0, n);
+                    let (b0, w) = nnls_intercept(&env, &target);
+                    comps[p] = combine(&env, &w, b0, n);
+                }
+                // Joint fit: shared speed-effort columns, own displacement columns.
+                let np = pair.len();
+                let ncol = SHARED + np * (nb - SHARED);
+                let mut cols = vec![vec![0.0; np * n]; ncol];
+                let mut y = vec![0.0; np * n];
+                for p in 0..np {
+                    let (my, _) = mean_sd(&comps[p]);
+                    for i in 0..n {
+                        y[p * n + i] = comps[p][i] - my;
+                    }
+                    for m in 0..nb {
+                        let col = if m < SHARED {
+                            m
+                        } else {
+                            SHARED + p * (nb - SHARED) + (m - SHARED)
+                        };
+                        let (mm, _) = mean_sd(&warped[p][m]);
+                        for i in 0..n {
+                            cols[col][p * n + i] = warped[p][m][i] - mm;
+                        }
+                    }
+                }
+                let (_, coef) = nnls_intercept(&cols, &y);
+                if coef.iter().all(|&v| v == 0.0) {
+                    break;
+                }
+                for p in 0..np {
+                    for m in 0..nb {
+                        let col = if m < SHARED {
+                            m
+                        } else {
+                            SHARED + p * (nb - SHARED) + (m - SHARED)
+                        };
+                        beta[p][m] = coef[col];
+                    }
+                }
+            }
+            for (p, &c) in pair.iter().enumerate() {
+                let target = combine(&warped[p], &beta[p], 0.0, n);
+                let a = &comps[p];
+                let rho = pearson(&inner(a), &inner(&target));
+                scale[c] = if rho.is_finite() && rho >= MIN_FEATURE_CORR {
+                    rho
+                } else {
+                    0.0
+                };
+                composite[c] = standardise(a, a);
+                let full = combine(&basis[c], &beta[p], 0.0, len);
+                intact[c] = standardise(&full, &full[d.ext..d.ext + n]);
+            }
+        }
+        if scale.iter().all(|&v| v == 0.0) {
+            break;
+        }
+        lag = warp(
+            d,
+            &scaled(&composite, &scale),
+            &scaled(&intact, &scale),
+            &opts,
+            cfg,
+            r,
+        )?;
+    }
+    let used: Vec<usize> = (0..nc).filter(|&c| scale[c] > 0.0).collect();
+    let pick = |f: &[Vec<f64>]| used.iter().map(|&c| f[c].clone()).collect::<Vec<_>>();
+    let sc = pick_vals(&scale, &used);
+    let (composite, intact) = (scaled(&pick(&composite), &sc), scaled(&pick(&intact), &sc));
+    let labels = used.iter().map(|&c| d.channels[c].label.clone()).collect();
+    let zero = vec![0.0; n];
+    let intact_before: Vec<Vec<f64>> = intact.iter().map(|f| at(&zero, f)).collect();
+    let intact_after: Vec<Vec<f64>> = intact.iter().map(|f| at(&lag, f)).collect();
+    let corr_before = stacked_corr(&composite, &intact_before, d.interior);
+    let corr_after = stacked_corr(&composite, &intact_after, d.interior);
+
+    // Null: the same composites warped onto an unrelated stretch of the intact side.
+    let corr_null = null_corr(d, &composite, &intact, &opts, cfg, r)?;
+
+    let lag_in: Vec<f64> = lag[d.interior.0..d.interior.1]
+        .iter()
+        .map(|l| l / d.rate_hz)
+        .collect();
+    let limit_share = {
+        let w = dtw_rows(
+            &rows(&composite, n),
+            &rows(&intact_before, n),
+            composite.len(),
+            Cost::Squared,
+            &opts,
+        )?;
+        let inside: Vec<bool> = w
+            .path
+            .iter()
+            .skip(1)
+            .zip(&w.at_limit)
+            .filter(|((i, _), _)| (d.interior.0..d.interior.1).contains(i))
+            .map(|(_, &l)| l)
+            .collect();
+        inside.iter().filter(|&&l| l).count() as f64 / inside.len().max(1) as f64
+    };
+    let figures = Figures {
+        lag_median_s: quantile(&lag_in, 0.5),
+        lag_iqr_s: quantile(&lag_in, 0.75) - quantile(&lag_in, 0.25),
+        lag_p10_p90_s: [quantile(&lag_in, 0.1), quantile(&lag_in, 0.9)],
+        corr_before,
+        corr_after,
+        corr_null,
+        share_at_limit: limit_share,
+    };
+    Ok(BlockOutcome {
+        labels,
+        lag,
+        figures,
+        composite,
+        intact_before,
+        intact_after,
+    })
+}
+
+/// One DTW of composites against intact features (window part), turned into a smooth lag.
+fn warp(
+    d: &BlockData,
+    composite: &[Vec<f64>],
+    intact: &[Vec<f64>],
+    opts: &DtwOptions,
+    cfg: &AlignConfig,
+    r: usize,
+) -> Result<Vec<f64>> {
+    let n = d.n;
+    let c = composite.len();
+    let reference: Vec<Vec<f64>> = intact
+        .iter()
+        .map(|f| f[d.ext..d.ext + n].to_vec())
+        .collect();
+    let w = dtw_rows(
+        &rows(composite, n),
+        &rows(&reference, n),
+        c,
+        Cost::Squared,
+        opts,
+    )?;
+    let raw = raw_lag(&w.path, n)?;
+    let weights = informativeness(d, composite, intact, &raw);
+    let mut lag = whittaker(&raw, &weights, cfg.smooth_s * d.rate_hz)?;
+    limit_slope(&mut lag, &weights, cfg.max_slope);
+    for l in &mut lag {
+        *l = l.clamp(-(r as f64), r as f64);
+    }
+    Ok(lag)
+}
+
+/// Weight of each window sample in the map smoother: where both sides
+/// change (geometric mean of the squared feature slopes), zero in the margins.
+fn informativeness(
+    d: &BlockData,
+    composite: &[Vec<f64>],
+    intact: &[Vec<f64>],
+    raw: &[f64],
+) -> Vec<f64> {
+    let n = d.n;
+    let slope2 = |f: &dyn Fn(f64) -> f64, i: usize| -> f64 {
+        let u = i as f64;
+        (f(u + 1.0) - f(u - 1.0)).powi(2)
+    };
+    let mut ge = vec![0.0; n];
+    let mut gi = vec![0.0; n];
+    for i in 0..n {
+        for c in composite {
+            ge[i] += slope2(&|u: f64| lerp_at(c, u), i);
+        }
+        let j = (i + d.ext) as f64 + raw[i];
+        for f in intact {
+            gi[i] += (lerp_at(f, j + 1.0) - lerp_at(f, j - 1.0)).powi(2);
+        }
+    }
+    let w = odd(0.1 * d.rate_hz);
+    let ge = moving_average(&ge, w);
+    let gi = moving_average(&gi, w);
+    let mut out: Vec<f64> = ge.iter().zip(&gi).map(|(a, b)| (a * b).sqrt()).collect();
+    let inner = &out[d.interior.0..d.interior.1];
+    let mean = inner.iter().sum::<f64>() / inner.len().max(1) as f64;
+    for (i, v) in out.iter_mut().enumerate() {
+        *v = if (d.interior.0..d.interior.1).contains(&i) {
+            *v + 0.02 * mean.max(1e-12)
+        } else {
+            0.0
+        };
+    }
+    out
+}
+
+/// Correlation after warping the composites onto a time-shifted copy of the
+/// intact features (the shift that makes them least like themselves); NaN
+/// for blocks too short for an unrelated stretch.
+fn null_corr(
+    d: &BlockData,
+    composite: &[Vec<f64>],
+    intact: &[Vec<f64>],
+    opts: &DtwOptions,
+    cfg: &AlignConfig,
+    r: usize,
+) -> Result<f64> {
+    let n = d.n;
+    let lo = (3 * r).max(n / 5);
+    if n < 2 * lo + 2 {
+        return Ok(f64::NAN);
+    }
+    let win: Vec<&[f64]> = intact.iter().map(|f| &f[d.ext..d.ext + n]).collect();
+    let stride = (n / 400).max(1);
+    let mut best = (f64::INFINITY, lo);
+    let mut s = lo;
+    while s <= n - lo {
+        let a: Vec<f64> = win.iter().flat_map(|f| f.iter().copied()).collect();
+        let b: Vec<f64> = win
+            .iter()
+            .flat_map(|f| (0..n).map(move |i| f[(i + s) % n]))
+            .collect();
+        let c = pearson(&a, &b);
+        if c.is_finite() && c < best.0 {
+            best = (c, s);
+        }
+        s += stride;
+    }
+    let shift = best.1;
+    let shifted: Vec<Vec<f64>> = win
+        .iter()
+        .map(|f| {
+            let mut e = vec![0.0; n + 2 * d.ext];
+            for (k, v) in e.iter_mut().enumerate() {
+                let i = (k as i64 - d.ext as i64).rem_euclid(n as i64) as usize;
+                *v = f[(i + shift) % n];
+            }
+            e
+        })
+        .collect();
+    let lag = warp(d, composite, &shifted, opts, cfg, r)?;
+    let after: Vec<Vec<f64>> = shifted
+        .iter()
+        .map(|f| {
+            (0..n)
+                .map(|i| lerp_at(f, (i + d.ext) as f64 + lag[i]))
+                .collect()
+        })
+        .collect();
+    Ok(stacked_corr(composite, &after, d.interior))
+}

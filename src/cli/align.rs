@@ -1,0 +1,68 @@
+//! `mirrorsite align`.
+
+use mirrorsite::align::{self, output, Envelopes, Verdict};
+use mirrorsite::config::Config;
+use mirrorsite::output::Staging;
+use mirrorsite::signal;
+use std::path::PathBuf;
+use std::process::ExitCode;
+
+/// Arguments of `mirrorsite align`.
+#[derive(Debug, clap::Args)]
+pub struct Args {
+    /// Session folder.
+    pub session: PathBuf,
+    /// New output folder: aligned.csv, alignment.json, figures/.
+    #[arg(long)]
+    pub out: PathBuf,
+    /// Analysis configuration file (defaults for every key it leaves out).
+    #[arg(long)]
+    pub config: Option<PathBuf>,
+    /// Replace the output folder if it exists.
+    #[arg(long)]
+    pub force: bool,
+}
+
+/// Runs the command.
+pub fn run(args: Args) -> mirrorsite::Result<ExitCode> {
+    let cfg = match &args.config {
+        Some(p) => Config::load(p)?,
+        None => Config::default(),
+    };
+    let s = mirrorsite::session::read(&args.session)?;
+    let (blocks, _source) = mirrorsite::protocol::session_blocks(&s)?;
+    let cond = signal::condition(&s.emg, s.sites(), &blocks, &cfg.signal)?;
+    let env = Envelopes::from(&cond);
+    let al = align::align(&s, &env, &blocks, &cfg.align)?;
+    let stage = Staging::new(&args.out, args.force)?;
+    output::write_all(stage.path(), &al, &cfg.align)?;
+    let target = stage.commit()?;
+    let mut text = String::new();
+    for b in &al.blocks {
+        let lag = b.figures.as_ref().map_or("      -".to_string(), |f| {
+            format!("{:+7.3}", f.lag_median_s)
+        });
+        text.push_str(&format!(
+            "{:>8.2}-{:<8.2} {:<14} {:<8} lag {lag} s  {:<9} {}\n",
+            b.block.start_s,
+            b.block.end_s,
+            b.block.task,
+            b.block.dof_label(),
+            b.quality.as_str(),
+            b.reasons.join("; ")
+        ));
+    }
+    let failed = al
+        .blocks
+        .iter()
+        .filter(|b| b.quality == Verdict::Failed)
+        .count();
+    text.push_str(&format!(
+        "{} of {} rows usable; {failed} block(s) failed and left out; written to {}\n",
+        al.usable.iter().filter(|&&u| u).count(),
+        al.len(),
+        target.display()
+    ));
+    super::print_out(&text)?;
+    Ok(ExitCode::SUCCESS)
+}
