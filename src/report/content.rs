@@ -23,15 +23,20 @@ pub(crate) enum Block {
     /// Small explanatory text.
     Note(String),
     /// A bullet with a bold lead-in.
-    Bullet { lead: String, rest: String },
+    Bullet {
+        lead: String,
+        rest: String,
+        action: Option<String>,
+    },
     /// A table; column titles with relative widths.
     Table {
         cols: Vec<(String, f64)>,
         rows: Vec<Vec<String>>,
         bold_first: bool,
     },
-    /// A figure at full width (`max_w` points at most in the PDF).
-    Figure(Box<Figure>, f64),
+    /// A figure at full width (`max_w` points at most in the PDF) with a
+    /// caption under it.
+    Figure(Box<Figure>, f64, String),
     /// Two figures side by side.
     FigurePair(Box<Figure>, Option<Box<Figure>>),
     /// The clinician review and sign-off box, one check line per planned site.
@@ -141,7 +146,7 @@ fn dof_blocks(report: &SitesReport, dof: &DofResult, figs: &[Figure], out: &mut 
         out.push(Block::Table {
             cols: vec![
                 ("Site".into(), 0.6),
-                ("Where".into(), 1.8),
+                ("Where (cm from the lateral epicondyle)".into(), 1.8),
                 ("Model".into(), 0.65),
                 ("Plan".into(), 0.55),
                 ("Stability".into(), 1.5),
@@ -214,7 +219,6 @@ pub(crate) fn sheet_blocks(report: &SitesReport) -> Result<Vec<Block>> {
         ("Produced by".into(), report.tool.clone()),
         ("Resampling seed".into(), report.seed.to_string()),
     ]));
-    out.push(Block::Notice(REVIEW_NOTICE.into()));
 
     out.push(Block::Heading("Planned sites".into()));
     if report.plan.sites.is_empty() {
@@ -248,7 +252,7 @@ pub(crate) fn sheet_blocks(report: &SitesReport) -> Result<Vec<Block>> {
         out.push(Block::Table {
             cols: vec![
                 ("Site".into(), 0.6),
-                ("Where on the forearm".into(), 1.9),
+                ("Where (cm from the lateral epicondyle)".into(), 1.9),
                 ("Serves".into(), 1.0),
                 ("Confidence".into(), 2.4),
                 ("If left out".into(), 1.2),
@@ -261,14 +265,15 @@ pub(crate) fn sheet_blocks(report: &SitesReport) -> Result<Vec<Block>> {
 
     out.push(Block::Heading("Site map".into()));
     if let Some(map) = figs.iter().find(|f| f.name == "site-map.svg") {
-        out.push(Block::Figure(Box::new(map.clone()), 10_000.0));
+        out.push(Block::Figure(
+            Box::new(map.clone()),
+            10_000.0,
+            "The forearm drawn unrolled: both side edges are the dorsal midline, angles grow \
+             toward the radial side, and the elbow is at the top. Distances are measured \
+             distally from the lateral epicondyle."
+                .into(),
+        ));
     }
-    out.push(Block::Note(
-        "The forearm is drawn unrolled: both side edges are the dorsal midline, angles grow \
-         toward the radial side, and the elbow is at the top. Distances are measured distally \
-         from the lateral epicondyle."
-            .into(),
-    ));
 
     out.push(Block::Heading("How well the plan serves each DoF".into()));
     let rows = report
@@ -321,7 +326,8 @@ pub(crate) fn sheet_blocks(report: &SitesReport) -> Result<Vec<Block>> {
     for f in &report.flags {
         out.push(Block::Bullet {
             lead: format!("{} — {}:", flag_kind(&f.what), f.at),
-            rest: format!("{} What to do: {}", ensure_sentence(&f.why), advice(f)),
+            rest: ensure_sentence(&f.why),
+            action: Some(advice(f).to_string()),
         });
     }
 
@@ -370,10 +376,12 @@ pub(crate) fn sheet_blocks(report: &SitesReport) -> Result<Vec<Block>> {
     });
 
     out.push(Block::Heading("Cautions".into()));
+    out.push(Block::Notice(REVIEW_NOTICE.into()));
     for (lead, rest) in super::words::CAUTIONS {
         out.push(Block::Bullet {
             lead: lead.into(),
             rest: rest.into(),
+            action: None,
         });
     }
 

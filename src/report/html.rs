@@ -21,7 +21,7 @@ dl.fields { display: grid; grid-template-columns: 7.5em 1fr 7.5em 1fr; gap: 2pt 
 dl.fields dt { font-size: 9pt; }
 dl.fields dd { margin: 0; font-weight: bold; }
 .notice { border: 1.6pt solid #000; padding: 6pt 8pt; font-weight: bold; }
-p.note { font-size: 9pt; }
+p.note, .note { font-size: 9pt; }
 table { border-collapse: collapse; width: 100%; font-size: 9pt; margin: 4pt 0 8pt; }
 th { background: #e2e2e2; text-align: left; border-top: 0.8pt solid #000; }
 th, td { padding: 3pt 4pt; vertical-align: top; border-bottom: 0.4pt solid #000; }
@@ -110,12 +110,16 @@ pub fn sheet_html(report: &SitesReport) -> Result<String> {
             Block::Note(s) => {
                 let _ = writeln!(h, "<p class=\"note\">{}</p>", esc(s));
             }
-            Block::Bullet { lead, rest } => {
+            Block::Bullet { lead, rest, action } => {
                 if !in_list {
                     h.push_str("<ul class=\"flags\">\n");
                     in_list = true;
                 }
-                let _ = writeln!(h, "<li><strong>{}</strong> {}</li>", esc(lead), esc(rest));
+                let _ = write!(h, "<li><strong>{}</strong> {}", esc(lead), esc(rest));
+                if let Some(a) = action {
+                    let _ = write!(h, "<br><strong>What to do:</strong> {}", esc(a));
+                }
+                h.push_str("</li>\n");
             }
             Block::Table {
                 cols,
@@ -141,7 +145,14 @@ pub fn sheet_html(report: &SitesReport) -> Result<String> {
                 }
                 h.push_str("</tbody>\n</table>\n");
             }
-            Block::Figure(f, _) => figure(&mut h, f),
+            Block::Figure(f, _, caption) => {
+                let _ = writeln!(
+                    h,
+                    "<figure>{}<figcaption class=\"note\">{}</figcaption></figure>",
+                    inline_svg(f),
+                    esc(caption)
+                );
+            }
             Block::FigurePair(a, b) => {
                 h.push_str("<div class=\"pair\">\n");
                 figure(&mut h, a);
@@ -172,9 +183,13 @@ pub fn sheet_html(report: &SitesReport) -> Result<String> {
                     "</tbody>\n</table>\n<div class=\"sign\"><strong>Name</strong>\
                      <span class=\"line\"></span><strong>Role</strong><span class=\"line\">\
                      </span><strong>Date</strong><span class=\"line\"></span>\
-                     <strong>Signature</strong><span class=\"line\"></span></div>\n\
-                     <strong>Notes</strong>\n<div class=\"notes\"></div>\n</div>\n",
+                     <strong>Signature</strong><span class=\"line\"></span></div>\n",
                 );
+                h.push_str("<p><strong>During the session</strong>");
+                for item in super::pdf::SESSION_CHECKS {
+                    let _ = write!(h, " &nbsp; <span class=\"box\"></span> {}", esc(item));
+                }
+                h.push_str("</p>\n<strong>Notes</strong>\n<div class=\"notes\"></div>\n</div>\n");
             }
         }
     }

@@ -147,14 +147,32 @@ impl<'a> Layout<'a> {
         self.y += size * 0.4;
     }
 
-    /// A paragraph starting with a bold lead-in (`lead` then `rest`), wrapped,
-    /// with a hanging indent after the bullet.
-    pub(crate) fn bullet(&mut self, lead: &str, rest: &str, size: f64) {
+    /// A bullet: a bold lead-in (`lead`) then `rest`, wrapped with a hanging
+    /// indent; `action`, when given, follows on its own line after a bold
+    /// "What to do:".
+    pub(crate) fn bullet(&mut self, lead: &str, rest: &str, action: Option<&str>, size: f64) {
+        let lh = size * 1.3;
+        let x = self.left();
+        self.ensure(lh * 3.0);
+        self.raw(&format!(
+            "<circle cx=\"{:.2}\" cy=\"{:.2}\" r=\"1.8\" fill=\"#000\"/>\n",
+            x + 4.0,
+            self.y + size * 0.67
+        ));
+        self.lead_run(lead, rest, size);
+        if let Some(a) = action {
+            self.lead_run("What to do:", a, size);
+        }
+        self.y += size * 0.35;
+    }
+
+    /// Bold `lead`, then `rest` filling the first line and wrapping under it,
+    /// 12 pt in from the left margin.
+    fn lead_run(&mut self, lead: &str, rest: &str, size: f64) {
         let lh = size * 1.3;
         let indent = 12.0;
         let w = self.width() - indent;
         let lead_w = self.fonts.width(lead, size, true) + self.fonts.width(" ", size, false);
-        // First line: the lead in bold, then as much of the rest as fits.
         let first_room = (w - lead_w).max(w * 0.3);
         let mut words = rest.split_whitespace().peekable();
         let mut first = String::new();
@@ -172,32 +190,18 @@ impl<'a> Layout<'a> {
         }
         let remainder: Vec<&str> = words.collect();
         let more = self.fonts.wrap(&remainder.join(" "), size, false, w);
-        let n_lines = 1 + more.iter().filter(|l| !l.is_empty()).count();
-        self.ensure(lh * n_lines.min(3) as f64);
+        self.ensure(lh);
         self.y += size;
-        let x = self.left();
-        self.raw(&format!(
-            "<circle cx=\"{:.2}\" cy=\"{:.2}\" r=\"1.8\" fill=\"#000\"/>\n",
-            x + 4.0,
-            self.y - size * 0.33
-        ));
-        self.text(x + indent, self.y, lead, size, true, Anchor::Start);
-        self.text(
-            x + indent + lead_w,
-            self.y,
-            &first,
-            size,
-            false,
-            Anchor::Start,
-        );
+        let x = self.left() + indent;
+        self.text(x, self.y, lead, size, true, Anchor::Start);
+        self.text(x + lead_w, self.y, &first, size, false, Anchor::Start);
         self.y += lh - size;
         for l in more.iter().filter(|l| !l.is_empty()) {
             self.ensure(lh);
             self.y += size;
-            self.text(x + indent, self.y, l, size, false, Anchor::Start);
+            self.text(x, self.y, l, size, false, Anchor::Start);
             self.y += lh - size;
         }
-        self.y += size * 0.35;
     }
 
     /// A table with wrapped cells; split across pages with the header repeated.
@@ -284,14 +288,32 @@ impl<'a> Layout<'a> {
         fig.height as f64 * s
     }
 
-    /// One figure at full width (or `max_w`, centred), kept on one page.
-    pub(crate) fn figure(&mut self, fig: &Figure, max_w: f64) {
-        let w = self.width().min(max_w);
-        let h = fig.height as f64 * w / fig.width as f64;
-        self.ensure(h + 4.0);
+    /// One figure at full width (or `max_w`, centred) with `caption` under it,
+    /// kept on one page; it shrinks to as little as 85% of that width to stay
+    /// on the current page.
+    pub(crate) fn figure(&mut self, fig: &Figure, max_w: f64, caption: &str) {
+        let full = self.width().min(max_w);
+        let cap_lines = self.fonts.wrap(caption, SMALL, false, self.width());
+        let cap_h = if caption.is_empty() {
+            0.0
+        } else {
+            cap_lines.len() as f64 * SMALL * 1.3 + 4.0
+        };
+        let aspect = fig.height as f64 / fig.width as f64;
+        let room = self.bottom() - self.y - 4.0 - cap_h;
+        let w = if full * aspect > room && room / aspect >= 0.85 * full {
+            room / aspect
+        } else {
+            full
+        };
+        let h = aspect * w;
+        self.ensure(h + 4.0 + cap_h);
         let x = self.left() + (self.width() - w) / 2.0;
         self.place_figure(fig, x, w);
         self.y += h + 4.0;
+        if !caption.is_empty() {
+            self.para(caption, SMALL, false, 0.0);
+        }
     }
 
     /// Two figures side by side, kept on one page.
@@ -324,9 +346,7 @@ impl<'a> Layout<'a> {
         let x1 = pw - MARGIN_X;
         let pages = std::mem::take(&mut self.pages);
         // Trim the running header so it never runs into the page number.
-        let right_w = self
-            .fonts
-            .width(&format!("{tool} · page 99 of 99"), 8.5, false);
+        let right_w = self.fonts.width("page 99 of 99", 8.5, false);
         let room = x1 - x0 - right_w - 12.0;
         let mut header = header.to_string();
         if self.fonts.width(&header, 8.5, false) > room {
@@ -356,8 +376,7 @@ impl<'a> Layout<'a> {
                 );
                 let _ = writeln!(
                     s,
-                    "<text x=\"{x1:.2}\" y=\"{hy}\" font-size=\"8.5\" text-anchor=\"end\">{} · page {} of {n}</text>",
-                    esc(tool),
+                    "<text x=\"{x1:.2}\" y=\"{hy}\" font-size=\"8.5\" text-anchor=\"end\">page {} of {n}</text>",
                     i + 1
                 );
                 let _ = writeln!(
@@ -377,6 +396,12 @@ impl<'a> Layout<'a> {
                     "<text x=\"{x0}\" y=\"{:.2}\" font-size=\"8\" font-weight=\"bold\">{}</text>",
                     fy + 12.0,
                     esc(footer)
+                );
+                let _ = writeln!(
+                    s,
+                    "<text x=\"{x1:.2}\" y=\"{:.2}\" font-size=\"8\" text-anchor=\"end\">{}</text>",
+                    fy + 12.0,
+                    esc(tool)
                 );
                 s.push_str("</svg>\n");
                 s

@@ -68,7 +68,7 @@ fn render_block(lay: &mut Layout, b: &Block) {
         Block::Heading(s) => lay.heading(s, 60.0),
         Block::Para(s) => lay.para(s, BODY, false, 0.0),
         Block::Note(s) => lay.para(s, SMALL, false, 0.0),
-        Block::Bullet { lead, rest } => lay.bullet(lead, rest, BODY),
+        Block::Bullet { lead, rest, action } => lay.bullet(lead, rest, action.as_deref(), BODY),
         Block::Table {
             cols,
             rows,
@@ -83,7 +83,7 @@ fn render_block(lay: &mut Layout, b: &Block) {
                 .collect();
             lay.table(&cols, rows, *bold_first);
         }
-        Block::Figure(f, max_w) => lay.figure(f, *max_w),
+        Block::Figure(f, max_w, caption) => lay.figure(f, *max_w, caption),
         Block::FigurePair(a, b) => lay.figure_pair(a, b.as_deref()),
         Block::SignOff { sites } => sign_off(lay, sites),
     }
@@ -93,13 +93,22 @@ fn render_block(lay: &mut Layout, b: &Block) {
 fn min_height(lay: &Layout, b: &Block) -> f64 {
     let fig_h = |f: &super::figures::Figure, w: f64| f.height as f64 * w / f.width as f64;
     match b {
-        Block::Figure(f, max_w) => fig_h(f, lay.width().min(*max_w)) + 4.0,
+        Block::Figure(f, max_w, caption) => {
+            let lines = lay.fonts.wrap(caption, SMALL, false, lay.width()).len() as f64;
+            0.85 * fig_h(f, lay.width().min(*max_w)) + 4.0 + lines * SMALL * 1.3 + 4.0 + 1.0
+        }
+        Block::Para(_) => 90.0,
         Block::FigurePair(a, _) => fig_h(a, (lay.width() - 10.0) / 2.0) + 4.0,
         Block::Table { .. } => 48.0,
         Block::SignOff { sites } => 200.0 + 22.0 * sites.len() as f64,
         _ => 40.0,
     }
 }
+
+/// Things of the session worth ticking on the record (SAFETY.md: note pain,
+/// a session cut short, skin reactions).
+pub(crate) const SESSION_CHECKS: [&str; 3] =
+    ["wearer reported pain", "session cut short", "skin reaction"];
 
 fn checkbox(lay: &mut Layout, x: f64, y: f64) {
     lay.rect(x, y, 10.0, 10.0, "#fff", 1.0);
@@ -117,6 +126,7 @@ fn sign_off(lay: &mut Layout, sites: &[(String, String)]) {
         + 12.0
         + 2.0 * 30.0
         + 16.0
+        + 22.0
         + 80.0;
     lay.ensure(total);
     lay.para(intro, BODY, false, 0.0);
@@ -162,7 +172,16 @@ fn sign_off(lay: &mut Layout, sites: &[(String, String)]) {
         }
         lay.y += 30.0;
     }
-    lay.y += 6.0;
+    lay.y += 4.0;
+    let y = lay.y + 10.0;
+    lay.text(x0, y, "During the session", BODY, true, Anchor::Start);
+    let mut x = x0 + 110.0;
+    for item in SESSION_CHECKS {
+        checkbox(lay, x, y - 8.5);
+        lay.text(x + 14.0, y, item, BODY, false, Anchor::Start);
+        x += 20.0 + lay.fonts.width(item, BODY, false);
+    }
+    lay.y += 22.0;
     let y = lay.y;
     lay.text(x0, y + 10.0, "Notes", BODY, true, Anchor::Start);
     lay.raw(&format!(
@@ -191,11 +210,10 @@ pub(crate) fn sheet_pages(
         }
     }
     let header = format!(
-        "Electrode site plan · subject {} · recorded {} · {} forearm · {}",
+        "Electrode site plan · subject {} · recorded {} · {} forearm · protocol {}",
         report.subject, report.recorded, report.residual_side, report.protocol
     );
-    let footer = "Decision aid, not a diagnosis: every placement is checked on the wearer \
-                  and signed off by the treating clinician.";
+    let footer = "Decision aid, not a diagnosis — clinician review and sign-off required.";
     Ok(lay.finish(&header, footer, &report.tool))
 }
 

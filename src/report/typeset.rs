@@ -102,6 +102,11 @@ impl Fonts {
             db.load_fonts_dir(dir);
         }
         db.load_system_fonts();
+        Fonts::choose(db)
+    }
+
+    /// Picks the family from a loaded database (see [`Fonts::load`]).
+    fn choose(db: Database) -> Result<Fonts> {
         let mut names: Vec<String> = PREFERRED.iter().map(|s| s.to_string()).collect();
         // Any other family as a last resort, in a stable order.
         let mut others: Vec<String> = db
@@ -191,5 +196,45 @@ impl Fonts {
             lines.push(line);
         }
         lines
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn no_font_is_a_clear_error_not_textless_pages() {
+        let err = Fonts::choose(Database::new()).err().expect("must fail");
+        let msg = err.to_string();
+        assert!(
+            msg.contains("no usable font") && msg.contains(FONT_DIR_ENV),
+            "{msg}"
+        );
+    }
+
+    #[test]
+    fn wrapping_respects_the_width() {
+        let Ok(f) = Fonts::load() else {
+            eprintln!("skipped: no system font");
+            return;
+        };
+        let text = "Check this site on the wearer before relying on it; if its signal is weak \
+                    or it loses contact, use one of the listed alternates.";
+        let lines = f.wrap(text, 9.5, false, 150.0);
+        assert!(lines.len() >= 3);
+        for l in &lines {
+            assert!(f.width(l, 9.5, false) <= 150.0, "{l}");
+        }
+        assert_eq!(
+            lines.join(" "),
+            text.split_whitespace().collect::<Vec<_>>().join(" ")
+        );
+        // Width scales linearly with size.
+        let (a, b) = (
+            f.width("Site A2", 10.0, false),
+            f.width("Site A2", 20.0, false),
+        );
+        assert!((b - 2.0 * a).abs() < 1e-9);
     }
 }

@@ -22,11 +22,11 @@ pub(crate) fn aspect(angle_deg: f64) -> &'static str {
     NAMES[k]
 }
 
-/// "dorsal-radial, 45°, 5 cm from the elbow".
+/// "dorsal-radial, 45°, 5 cm" (distance from the lateral epicondyle).
 pub(crate) fn position(report: &SitesReport, site: &str) -> String {
     match report.site_info.iter().find(|s| s.site == site) {
         Some(s) => format!(
-            "{}, {}°, {} cm from the elbow",
+            "{}, {}°, {} cm",
             aspect(s.angle_deg),
             fmt_num(s.angle_deg, 1),
             fmt_num(s.distance_cm, 1)
@@ -167,9 +167,9 @@ pub(crate) fn flag_kind(what: &str) -> String {
 }
 
 /// The statement at the top of every sheet.
-pub(crate) const REVIEW_NOTICE: &str = "Decision aid — clinician review required. This sheet \
-suggests where surface-EMG electrodes might sit; it is not a diagnosis. The treating clinician \
-decides, checks every placement on the wearer and signs off below.";
+pub(crate) const REVIEW_NOTICE: &str = "This sheet suggests where surface-EMG electrodes might \
+sit; it is not a diagnosis. The treating clinician decides, checks every placement on the \
+wearer and signs off at the end of this sheet.";
 
 /// The cautions of the project's safety notes, condensed for the sheet.
 pub(crate) const CAUTIONS: [(&str, &str); 7] = [

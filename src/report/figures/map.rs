@@ -12,8 +12,8 @@ use std::collections::BTreeSet;
 type Area<'a> = DrawingArea<SVGBackend<'a>, Shift>;
 
 const W: u32 = 720;
-const H: u32 = 520;
-const LEGEND_H: u32 = 96;
+const H: u32 = 480;
+const LEGEND_H: u32 = 88;
 const R: i32 = 8;
 /// Fill of a site selected for some DoF but left out of the plan.
 const SELECTED_FILL: RGBColor = RGBColor(150, 150, 150);
@@ -330,7 +330,7 @@ pub(crate) fn site_map(report: &SitesReport) -> Result<Figure> {
 
         // Legend: two columns of three.
         let col = [24, 384];
-        let rows = [18, 48, 78];
+        let rows = [16, 44, 72];
         marker(&legend, (col[0], rows[0]), "ok", Role::Planned)?;
         marker(&legend, (col[0], rows[1]), "ok", Role::Selected)?;
         dashed(&legend, (col[0] - 14, rows[2]), (col[0] + 14, rows[2]))?;
