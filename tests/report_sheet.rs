@@ -191,3 +191,21 @@ fn write_sample_when_asked() {
     let (letter, _) = report::sheet_pdf(&r, PageSize::Letter).unwrap();
     std::fs::write(dir.join("sheet-letter.pdf"), letter).unwrap();
 }
+
+#[test]
+fn an_empty_result_still_makes_a_sheet_that_says_so() {
+    // A session where nothing could be selected: no DoF results, no plan.
+    let mut r = fixture::report();
+    r.dofs.clear();
+    r.plan.sites.clear();
+    r.plan.dofs.clear();
+    r.alignment.clear();
+    r.flags.clear();
+    let html = report::sheet_html(&r).unwrap();
+    assert!(html.contains("No site was planned"));
+    assert!(html.contains("No flags were raised"));
+    let (pdf, n) = report::sheet_pdf(&r, PageSize::Letter).unwrap();
+    assert!(pdf.starts_with(b"%PDF-") && n >= 1);
+    r.site_info.clear();
+    assert!(report::sheet_html(&r).is_ok());
+}

@@ -427,7 +427,12 @@ pub(crate) fn effect_slices(dof: &DofResult, eff: &Effect) -> Result<Figure> {
         }
         chart
             .configure_series_labels()
-            .position(SeriesLabelPosition::UpperLeft)
+            // Curves that dip below zero leave the lower left free; others the upper left.
+            .position(if -lo > hi {
+                SeriesLabelPosition::LowerLeft
+            } else {
+                SeriesLabelPosition::UpperLeft
+            })
             .background_style(WHITE.mix(0.9))
             .border_style(INK)
             .label_font((FONT, 14))
