@@ -11,6 +11,7 @@
 
 use crate::align::AlignConfig;
 use crate::error::{Error, InputError, InputErrorKind, Result};
+use crate::plan::PlanConfig;
 use crate::select::SelectConfig;
 use crate::signal::SignalConfig;
 use serde::{Deserialize, Serialize};
@@ -37,6 +38,8 @@ pub struct Config {
     pub align: AlignConfig,
     /// Per-DoF selection.
     pub select: SelectConfig,
+    /// The site plan.
+    pub plan: PlanConfig,
 }
 
 impl Config {
@@ -71,7 +74,10 @@ impl Config {
             .map_err(|(k, m)| (format!("{}.{k}", AlignConfig::NAME), m))?;
         self.select
             .check()
-            .map_err(|(k, m)| (format!("{}.{k}", SelectConfig::NAME), m))
+            .map_err(|(k, m)| (format!("{}.{k}", SelectConfig::NAME), m))?;
+        self.plan
+            .check()
+            .map_err(|(k, m)| (format!("{}.{k}", PlanConfig::NAME), m))
     }
 
     /// The default configuration as commented TOML: every key with its
@@ -85,6 +91,7 @@ impl Config {
         render_section::<SignalConfig>(&mut out);
         render_section::<AlignConfig>(&mut out);
         render_section::<SelectConfig>(&mut out);
+        render_section::<PlanConfig>(&mut out);
         out
     }
 }

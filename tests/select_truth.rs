@@ -6,7 +6,9 @@ use mirrorsite::simulate::{self, Role, Scenario, Simulated};
 use std::path::PathBuf;
 
 fn fixture(name: &str) -> PathBuf {
-    PathBuf::from(env!("CARGO_MANIFEST_DIR")).join("tests/fixtures").join(name)
+    PathBuf::from(env!("CARGO_MANIFEST_DIR"))
+        .join("tests/fixtures")
+        .join(name)
 }
 
 /// Rectified raw EMG, 100 ms moving average, sampled at 100 Hz, scaled by its 95th percentile.
@@ -62,7 +64,10 @@ pub fn perfect_data(sc: &Scenario, sim: &Simulated, dof: usize) -> DofData {
 
 #[test]
 fn demo_scenario_with_perfect_alignment() {
-    let sc = Scenario::from_file(&PathBuf::from(env!("CARGO_MANIFEST_DIR")).join("demo-data/demo-scenario.toml")).unwrap();
+    let sc = Scenario::from_file(
+        &PathBuf::from(env!("CARGO_MANIFEST_DIR")).join("demo-data/demo-scenario.toml"),
+    )
+    .unwrap();
     let sim = simulate::simulate(&sc).unwrap();
     let cfg = SelectConfig::default();
     for dof in 0..sc.dof.len() {
@@ -70,14 +75,35 @@ fn demo_scenario_with_perfect_alignment() {
         let t = std::time::Instant::now();
         let sel = select_dof(&data, &cfg, &vec![false; data.sites.len()], &|_| {}).unwrap();
         let r = &sel.result;
-        eprintln!("{}: {:.1} s selected {:?} cv {:?} baselines {:?}", r.dof, t.elapsed().as_secs_f64(), r.selected, r.cv, r.baselines);
+        eprintln!(
+            "{}: {:.1} s selected {:?} cv {:?} baselines {:?}",
+            r.dof,
+            t.elapsed().as_secs_f64(),
+            r.selected,
+            r.cv,
+            r.baselines
+        );
         for st in &r.stages {
-            eprintln!("  stage {} {:?} r2 {:.3} phi {} {}", st.stage, st.sites, st.cv.r2, st.phi_s, st.phi_z);
+            eprintln!(
+                "  stage {} {:?} r2 {:.3} phi {} {}",
+                st.stage, st.sites, st.cv.r2, st.phi_s, st.phi_z
+            );
         }
         for s in r.sites.iter().filter(|s| s.frequency > 0.0) {
-            eprintln!("  {} freq {} {} alts {:?}", s.site, s.frequency, s.confidence, s.alternates.iter().map(|a| (&a.site, a.cv.r2)).collect::<Vec<_>>());
+            eprintln!(
+                "  {} freq {} {} alts {:?}",
+                s.site,
+                s.frequency,
+                s.confidence,
+                s.alternates
+                    .iter()
+                    .map(|a| (&a.site, a.cv.r2))
+                    .collect::<Vec<_>>()
+            );
         }
-        for f in &sel.flags { eprintln!("  flag {:?}", f); }
+        for f in &sel.flags {
+            eprintln!("  flag {:?}", f);
+        }
         let pos = sim.truth.informative_for(&r.dof, "positive");
         let neg = sim.truth.informative_for(&r.dof, "negative");
         eprintln!("  truth +{:?} -{:?}", pos, neg);

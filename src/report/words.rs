@@ -103,7 +103,7 @@ pub(crate) fn opposite(positive: &str) -> String {
 /// What the clinician should do about a flag, by its kind.
 pub(crate) fn advice(flag: &Flag) -> &'static str {
     match flag.what.as_str() {
-        "low-confidence" | "unstable" => {
+        "low-confidence" | "medium-confidence" | "unstable" => {
             "Check this site on the wearer before relying on it; if its signal is weak or \
              it loses contact, use one of the listed alternates."
         }
@@ -126,6 +126,14 @@ pub(crate) fn advice(flag: &Flag) -> &'static str {
         "budget" => {
             "The socket's channels do not cover everything this DoF needs. Decide with the \
              wearer which movement matters more, or consider more channels."
+        }
+        "no-site" => {
+            "No recorded site explains this movement. Check that the wearer could perform \
+             it, review the electrode layout and repeat the tasks before fitting."
+        }
+        "weak-model" => {
+            "The EMG explains this movement only a little better than its position alone; \
+             treat the chosen sites as tentative and confirm them on the wearer."
         }
         "fatigue" | "pain" => {
             "Results from a tired wearer or one in pain deserve low confidence; consider a \

@@ -42,6 +42,9 @@ pub struct SelectConfig {
     pub max_alternates: usize,
     /// Relative duality-gap tolerance of the solver.
     pub tol_gap: f64,
+    /// The λ path stops once the fit on all rows selects more than this many
+    /// sites (glmnet's `dfmax`): sparse settings are the ones the rule picks.
+    pub max_sites: usize,
     /// Seed of the resampling.
     pub seed: u64,
 }
@@ -65,7 +68,8 @@ impl Default for SelectConfig {
             low_frequency: 0.5,
             alternate_correlation: 0.6,
             max_alternates: 3,
-            tol_gap: 1e-8,
+            tol_gap: 1e-6,
+            max_sites: 8,
             seed: 1,
         }
     }
@@ -85,7 +89,10 @@ impl SelectConfig {
             return bad("lag_window_s", "must be in (0, 2] s");
         }
         if self.n_lag < 4 || self.n_pos < 4 {
-            return bad("n_lag", "cubic B-splines need at least 4 functions (n_lag and n_pos)");
+            return bad(
+                "n_lag",
+                "cubic B-splines need at least 4 functions (n_lag and n_pos)",
+            );
         }
         if self.n_baseline == 2 || self.n_baseline == 3 {
             return bad("n_baseline", "must be 0, 1 or at least 4");
@@ -107,14 +114,23 @@ impl SelectConfig {
         if self.stages == 0 {
             return bad("stages", "needs at least 1");
         }
-        if !(0.0 < self.low_frequency && self.low_frequency <= self.high_frequency && self.high_frequency <= 1.0) {
-            return bad("high_frequency", "needs 0 < low_frequency ≤ high_frequency ≤ 1");
+        if !(0.0 < self.low_frequency
+            && self.low_frequency <= self.high_frequency
+            && self.high_frequency <= 1.0)
+        {
+            return bad(
+                "high_frequency",
+                "needs 0 < low_frequency ≤ high_frequency ≤ 1",
+            );
         }
         if !(self.resample_block_s > 0.0) {
             return bad("resample_block_s", "must be positive");
         }
         if !(0.0..=1.0).contains(&self.alternate_correlation) {
             return bad("alternate_correlation", "must lie between 0 and 1");
+        }
+        if self.max_sites == 0 {
+            return bad("max_sites", "needs at least 1");
         }
         if !(self.tol_gap > 0.0 && self.tol_gap < 1e-2) {
             return bad("tol_gap", "must lie between 0 and 0.01");
@@ -125,38 +141,97 @@ impl SelectConfig {
 
 impl crate::config::ConfigSection for SelectConfig {
     const NAME: &'static str = "select";
-    const ABOUT: &'static str = "Per-DoF selection: the functional group-lasso model, its tuning by \
+    const ABOUT: &'static str =
+        "Per-DoF selection: the functional group-lasso model, its tuning by \
 block cross-validation with the one-standard-error rule, staged adaptive refits, stability \
 selection and alternates.";
     const KEYS: &'static [(&'static str, &'static str)] = &[
-        ("lag_window_s", "Lag window delta in s over which each site's envelope acts on the velocity: \
-electro-mechanical delay (about 30-100 ms; Cavanagh & Komi 1979) plus the build-up of force."),
-        ("n_lag", "Cubic B-splines along the lag of each effect surface."),
-        ("n_pos", "Cubic B-splines along the position of each effect surface."),
-        ("n_baseline", "Cubic B-splines of the unpenalised position baseline a(z) (passive movement); \
-0 = none, 1 = intercept only."),
-        ("folds", "Contiguous cross-validation blocks in time, with a gap of one lag window on each \
-side of the held-out block (h-block CV; Burman, Chow & Nolan 1994)."),
-        ("n_lambda", "Values on each log-spaced lambda path from lambda_max."),
-        ("lambda_ratio", "Smallest lambda as a share of lambda_max (glmnet's convention)."),
-        ("phi_s", "Smoothing along the lag, relative to tr(M)/tr(P_s) so that it does not depend on \
-the window length; log-spaced values tried in tuning."),
-        ("phi_z", "Smoothing along the position, relative to tr(M)/tr(P_z); log-spaced values tried \
-in tuning."),
-        ("stages", "Largest number of stages: stage 1 with equal weights, then adaptive refits on the \
-kept sites with weights 1/norm (adaptive lasso, Zou 2006)."),
-        ("resamples", "Moving-block bootstrap refits for the selection frequency (stability \
-selection, Meinshausen & Buehlmann 2010)."),
-        ("resample_block_s", "Length in s of the bootstrap blocks (keeps the time dependence inside \
-a block; Kuensch 1989)."),
-        ("high_frequency", "Selection frequency at or above which a pick has high confidence \
-(Meinshausen & Buehlmann recommend thresholds of 0.6-0.9)."),
-        ("low_frequency", "Selection frequency below which a pick has low confidence; between the \
-two it is medium and flagged for review."),
-        ("alternate_correlation", "Smallest envelope correlation for an unselected site to be \
-offered as an alternate (engineering judgement)."),
-        ("max_alternates", "Most alternates reported per selected site."),
-        ("tol_gap", "Relative duality-gap tolerance of the group-lasso solver."),
+        (
+            "lag_window_s",
+            "Lag window delta in s over which each site's envelope acts on the velocity: \
+electro-mechanical delay (about 30-100 ms; Cavanagh & Komi 1979) plus the build-up of force.",
+        ),
+        (
+            "n_lag",
+            "Cubic B-splines along the lag of each effect surface.",
+        ),
+        (
+            "n_pos",
+            "Cubic B-splines along the position of each effect surface.",
+        ),
+        (
+            "n_baseline",
+            "Cubic B-splines of the unpenalised position baseline a(z) (passive movement); \
+0 = none, 1 = intercept only.",
+        ),
+        (
+            "folds",
+            "Contiguous cross-validation blocks in time, with a gap of one lag window on each \
+side of the held-out block (h-block CV; Burman, Chow & Nolan 1994).",
+        ),
+        (
+            "n_lambda",
+            "Values on each log-spaced lambda path from lambda_max.",
+        ),
+        (
+            "lambda_ratio",
+            "Smallest lambda as a share of lambda_max (glmnet's convention).",
+        ),
+        (
+            "phi_s",
+            "Smoothing along the lag, relative to tr(M)/tr(P_s) so that it does not depend on \
+the window length; log-spaced values tried in tuning.",
+        ),
+        (
+            "phi_z",
+            "Smoothing along the position, relative to tr(M)/tr(P_z); log-spaced values tried \
+in tuning.",
+        ),
+        (
+            "stages",
+            "Largest number of stages: stage 1 with equal weights, then adaptive refits on the \
+kept sites with weights 1/norm (adaptive lasso, Zou 2006).",
+        ),
+        (
+            "resamples",
+            "Moving-block bootstrap refits for the selection frequency (stability \
+selection, Meinshausen & Buehlmann 2010).",
+        ),
+        (
+            "resample_block_s",
+            "Length in s of the bootstrap blocks (keeps the time dependence inside \
+a block; Kuensch 1989).",
+        ),
+        (
+            "high_frequency",
+            "Selection frequency at or above which a pick has high confidence \
+(Meinshausen & Buehlmann recommend thresholds of 0.6-0.9).",
+        ),
+        (
+            "low_frequency",
+            "Selection frequency below which a pick has low confidence; between the \
+two it is medium and flagged for review.",
+        ),
+        (
+            "alternate_correlation",
+            "Smallest envelope correlation for an unselected site to be \
+offered as an alternate (engineering judgement).",
+        ),
+        (
+            "max_alternates",
+            "Most alternates reported per selected site.",
+        ),
+        (
+            "tol_gap",
+            "Relative duality-gap tolerance of the group-lasso solver (the gap bounds the \
+objective's distance to the optimum; 1e-6 is far below the spread of cross-validated errors).",
+        ),
+        (
+            "max_sites",
+            "The lambda path stops once the fit on all rows selects more than this many \
+sites, like glmnet's dfmax; the minimum of the cross-validated error is then taken over the \
+path up to that point.",
+        ),
         ("seed", "Seed of the bootstrap resampling."),
     ];
 }

@@ -66,10 +66,17 @@ impl Context {
         let grams = FoldGrams::new(design.augmented(), &folds)?;
         let surface: &SurfaceBasis = design.surface();
         let tm = trace(&surface.gram());
-        let phi_scale = (tm / trace(&surface.penalty_lag()), tm / trace(&surface.penalty_pos()));
+        let phi_scale = (
+            tm / trace(&surface.penalty_lag()),
+            tm / trace(&surface.penalty_pos()),
+        );
         let n = rows.len() as f64;
         let mean = rows.iter().map(|&r| data.y[r]).sum::<f64>() / n;
-        let y_var = rows.iter().map(|&r| (data.y[r] - mean).powi(2)).sum::<f64>() / n;
+        let y_var = rows
+            .iter()
+            .map(|&r| (data.y[r] - mean).powi(2))
+            .sum::<f64>()
+            / n;
         if !(y_var > 1e-12) {
             return Err(Error::Analysis(format!(
                 "DoF `{}` does not move in the usable frames (velocity variance {y_var:.2e}); nothing to fit",
@@ -114,8 +121,18 @@ impl Context {
         FoldGrams {
             total: subset_gram(&self.grams.total, &cols),
             folds: self.grams.folds.clone(),
-            train: self.grams.train.iter().map(|g| subset_gram(g, &cols)).collect(),
-            held: self.grams.held.iter().map(|g| subset_gram(g, &cols)).collect(),
+            train: self
+                .grams
+                .train
+                .iter()
+                .map(|g| subset_gram(g, &cols))
+                .collect(),
+            held: self
+                .grams
+                .held
+                .iter()
+                .map(|g| subset_gram(g, &cols))
+                .collect(),
         }
     }
 

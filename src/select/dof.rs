@@ -91,7 +91,9 @@ pub fn select_dof(
     progress: &(dyn Fn(Step) + Sync),
 ) -> Result<DofSelection> {
     let ctx = Context::new(data, cfg)?;
-    let candidates: Vec<usize> = (0..data.sites.len()).filter(|&k| !data.excluded[k]).collect();
+    let candidates: Vec<usize> = (0..data.sites.len())
+        .filter(|&k| !data.excluded[k])
+        .collect();
     if candidates.is_empty() {
         return Err(crate::Error::Analysis(format!(
             "DoF `{}`: every site was excluded for bad signal quality",
@@ -101,9 +103,13 @@ pub fn select_dof(
     let stages = run_stages(&ctx, &candidates, &|s| progress(Step::Stage(s.stage)))?;
     let last = stages.last().expect("at least one stage");
     let selected = last.tuned.selected();
-    let freq = frequencies(&ctx, &candidates, &stages, label_seed(cfg.seed, &data.dof), &|| {
-        progress(Step::Resample)
-    })?;
+    let freq = frequencies(
+        &ctx,
+        &candidates,
+        &stages,
+        label_seed(cfg.seed, &data.dof),
+        &|| progress(Step::Resample),
+    )?;
     progress(Step::Compare);
     let phi = (last.tuned.chosen.phi_s, last.tuned.chosen.phi_z);
     let rows = ctx.design.rows().to_vec();
@@ -121,7 +127,10 @@ pub fn select_dof(
         cands.sort_by(|a, b| b.1.abs().total_cmp(&a.1.abs()).then(a.0.cmp(&b.0)));
         cands.truncate(cfg.max_alternates);
         for (j, r) in cands {
-            let swapped: Vec<usize> = selected.iter().map(|&s| if s == k { j } else { s }).collect();
+            let swapped: Vec<usize> = selected
+                .iter()
+                .map(|&s| if s == k { j } else { s })
+                .collect();
             alternates[k].push(Alternate {
                 site: data.sites[j].clone(),
                 correlation: round(r, 4),
@@ -133,7 +142,11 @@ pub fn select_dof(
     // The concurrent linear model on the same sites shows what the lagged,
     // position-dependent model buys; on every usable site, what a model
     // needing all electrodes could reach.
-    let linear_sites = if selected.is_empty() { &candidates } else { &selected };
+    let linear_sites = if selected.is_empty() {
+        &candidates
+    } else {
+        &selected
+    };
     let baselines = vec![
         Baseline {
             name: "linear".into(),
@@ -180,14 +193,24 @@ pub fn select_dof(
         .iter()
         .map(|s| Stage {
             stage: s.stage,
-            sites: s.tuned.selected().iter().map(|&g| data.sites[g].clone()).collect(),
+            sites: s
+                .tuned
+                .selected()
+                .iter()
+                .map(|&g| data.sites[g].clone())
+                .collect(),
             cv: rounded(ctx.figures(s.tuned.chosen.mean_mse)),
             lambda: s.tuned.chosen.lambda,
             phi_s: s.tuned.chosen.phi_s,
             phi_z: s.tuned.chosen.phi_z,
         })
         .collect();
-    let stage_count = |k: usize| stages.iter().filter(|s| s.tuned.selected().contains(&k)).count();
+    let stage_count = |k: usize| {
+        stages
+            .iter()
+            .filter(|s| s.tuned.selected().contains(&k))
+            .count()
+    };
 
     let sites: Vec<SiteResult> = candidates
         .iter()
@@ -211,7 +234,12 @@ pub fn select_dof(
             let chosen = (f * n_res as f64).round() as usize;
             let alt = alternates[k]
                 .first()
-                .map(|a| format!("; consider {} (envelope correlation {:.2})", a.site, a.correlation))
+                .map(|a| {
+                    format!(
+                        "; consider {} (envelope correlation {:.2})",
+                        a.site, a.correlation
+                    )
+                })
                 .unwrap_or_default();
             flags.push(Flag {
                 what: format!("{conf}-confidence"),
@@ -269,6 +297,7 @@ pub fn select_dof(
         baselines,
         stages: stage_hist,
         effects,
+        resamples: Some(cfg.resamples),
     };
     Ok(DofSelection {
         result,

@@ -25,9 +25,11 @@ use crate::Result;
 /// The Gram of resample `r`: blocks drawn with replacement.
 fn resample_gram(ctx: &Context, seed: u64, r: usize) -> Gram {
     let n = ctx.design.n_rows();
-    let len = ((ctx.cfg.resample_block_s * ctx.design.spec().feature_rate).round() as usize).clamp(1, n);
+    let len =
+        ((ctx.cfg.resample_block_s * ctx.design.spec().feature_rate).round() as usize).clamp(1, n);
     let blocks = n.div_ceil(len);
-    let mut rng = ChaCha8Rng::seed_from_u64(seed ^ (0x9e37_79b9_7f4a_7c15u64.wrapping_mul(r as u64 + 1)));
+    let mut rng =
+        ChaCha8Rng::seed_from_u64(seed ^ (0x9e37_79b9_7f4a_7c15u64.wrapping_mul(r as u64 + 1)));
     let mut counts = vec![0usize; blocks];
     for _ in 0..blocks {
         counts[rng.random_range(0..blocks)] += 1;
@@ -37,7 +39,9 @@ fn resample_gram(ctx: &Context, seed: u64, r: usize) -> Gram {
         if c == 0 {
             continue;
         }
-        let g = ctx.design.gram_of(b * len..((b + 1) * len).min(n), Par::Seq);
+        let g = ctx
+            .design
+            .gram_of(b * len..((b + 1) * len).min(n), Par::Seq);
         for _ in 0..c {
             acc = acc.add(&g);
         }
@@ -46,7 +50,12 @@ fn resample_gram(ctx: &Context, seed: u64, r: usize) -> Gram {
 }
 
 /// Final selection of one resample, rerunning the stages at fixed settings.
-fn resample_selection(ctx: &Context, gram: &Gram, candidates: &[usize], stages: &[StageRun]) -> Result<Vec<usize>> {
+fn resample_selection(
+    ctx: &Context,
+    gram: &Gram,
+    candidates: &[usize],
+    stages: &[StageRun],
+) -> Result<Vec<usize>> {
     let mut groups = candidates.to_vec();
     let mut weights = vec![1.0; groups.len()];
     for st in stages {
@@ -71,7 +80,11 @@ fn resample_selection(ctx: &Context, gram: &Gram, candidates: &[usize], stages: 
             .iter()
             .map(|&i| {
                 let n = fit.norms[i];
-                if n > 0.0 { 1.0 / n } else { f64::INFINITY }
+                if n > 0.0 {
+                    1.0 / n
+                } else {
+                    f64::INFINITY
+                }
             })
             .collect();
         groups = selected;

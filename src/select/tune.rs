@@ -99,10 +99,23 @@ fn run_phi(ctx: &Context, groups: &[usize], weights: &[f64], phi: (f64, f64)) ->
     let lmax = problem.lambda_max(weights)?;
     let cfg = &ctx.cfg;
     // With no signal at all λ_max is 0; use a tiny positive grid so the path is defined.
-    let top = if lmax > 0.0 { lmax } else { f64::MIN_POSITIVE.sqrt() };
+    let top = if lmax > 0.0 {
+        lmax
+    } else {
+        f64::MIN_POSITIVE.sqrt()
+    };
     let grid = lambda_grid(top, cfg.lambda_ratio, cfg.n_lambda);
     let t0 = std::time::Instant::now();
-    let (fits, mean, se) = cv_path_early(&problem, &sub, ctx.q, &factors, weights, &grid, &ctx.opts)?;
+    let (fits, mean, se) = cv_path_early(
+        &problem,
+        &sub,
+        ctx.q,
+        &factors,
+        weights,
+        &grid,
+        &ctx.opts,
+        ctx.cfg.max_sites,
+    )?;
     if std::env::var_os("MIRRORSITE_TIMING").is_some() {
         let sweeps: usize = fits.iter().map(|f| f.sweeps).sum();
         eprintln!(
@@ -142,7 +155,10 @@ type CvCurve = (Vec<Fit>, Vec<f64>, Vec<f64>);
 /// starts, and stops early once the mean held-out error has risen `STOP_SE`
 /// standard errors above its running minimum for `STOP_AFTER` values (the
 /// settings past that point cannot be chosen by the one-standard-error rule).
-/// Returns the fits on all rows and the mean and standard error per solved λ.
+/// It also stops once the fit on all rows selects more than `max_sites`
+/// sites (glmnet's `dfmax`). Returns the fits on all rows and the mean and
+/// standard error per solved λ.
+#[allow(clippy::too_many_arguments)]
 fn cv_path_early(
     full: &GroupLasso,
     sub: &FoldGrams,
@@ -151,6 +167,7 @@ fn cv_path_early(
     weights: &[f64],
     grid: &[f64],
     opts: &SolverOptions,
+    max_sites: usize,
 ) -> Result<CvCurve> {
     let mut runs: Vec<FoldRun> = sub
         .train
@@ -180,7 +197,9 @@ fn cv_path_early(
             || {
                 runs.par_iter_mut()
                     .map(|r| {
-                        let fs = r.problem.fit_path(weights, chunk, opts, r.theta.as_deref())?;
+                        let fs = r
+                            .problem
+                            .fit_path(weights, chunk, opts, r.theta.as_deref())?;
                         let mut m = Vec::with_capacity(fs.len());
                         for f in &fs {
                             let c = r.prof.full_coef(&f.coef);
@@ -210,9 +229,15 @@ fn cv_path_early(
         let (imin, mmin) = mean
             .iter()
             .enumerate()
-            .fold((0, f64::INFINITY), |acc, (i, m)| if *m < acc.1 { (i, *m) } else { acc });
+            .fold(
+                (0, f64::INFINITY),
+                |acc, (i, m)| if *m < acc.1 { (i, *m) } else { acc },
+            );
         let last = mean.len() - 1;
         if last >= imin + STOP_AFTER && mean[last] > mmin + STOP_SE * se[imin] {
+            break;
+        }
+        if fits.last().is_some_and(|f| f.active.len() > max_sites) {
             break;
         }
     }
@@ -264,9 +289,8 @@ pub fn tune(ctx: &Context, groups: &[usize], weights: &[f64]) -> Result<Tuned> {
         settings.extend(r.settings);
         fits.extend(r.fits);
     }
-    let (c, b) = one_se_rule(&settings).ok_or_else(|| {
-        crate::Error::Analysis("cross-validation gave no finite error".into())
-    })?;
+    let (c, b) = one_se_rule(&settings)
+        .ok_or_else(|| crate::Error::Analysis("cross-validation gave no finite error".into()))?;
     Ok(Tuned {
         chosen: settings[c].clone(),
         best: settings[b].clone(),
