@@ -8,7 +8,7 @@ use super::context::Context;
 use super::cv::cross_validate;
 use super::data::DofData;
 use super::folds::FoldGrams;
-use super::solver::{lambda_grid, GroupLasso};
+use super::solver::{lambda_grid, Fit, GroupLasso};
 use crate::report::CvFigures;
 use crate::Result;
 
@@ -16,8 +16,16 @@ use crate::Result;
 /// smoothing `phi`), at the λ with the smallest mean held-out error. With no
 /// groups it is the position-only model.
 pub fn cv_for_set(ctx: &Context, groups: &[usize], phi: (f64, f64)) -> Result<CvFigures> {
+    Ok(relaxed_fit(ctx, groups, phi)?.0)
+}
+
+/// The relaxed refit of a site set (Meinshausen 2007): the group lasso on
+/// `groups` alone with weights 1 and smoothing `phi`, at the λ of smallest
+/// mean held-out error. Returns its cross-validated figures and the fit on
+/// all rows at that λ (none for an empty set).
+pub fn relaxed_fit(ctx: &Context, groups: &[usize], phi: (f64, f64)) -> Result<(CvFigures, Option<Fit>)> {
     if groups.is_empty() {
-        return Ok(ctx.figures(baseline_only_mse(ctx, &ctx.subset_folds(&[]))?));
+        return Ok((ctx.figures(baseline_only_mse(ctx, &ctx.subset_folds(&[]))?), None));
     }
     let l = ctx.factor(phi.0, phi.1)?;
     let factors = vec![l; groups.len()];
@@ -27,12 +35,17 @@ pub fn cv_for_set(ctx: &Context, groups: &[usize], phi: (f64, f64)) -> Result<Cv
     let w = vec![1.0; groups.len()];
     let lmax = problem.lambda_max(&w)?;
     if lmax <= 0.0 {
-        return Ok(ctx.figures(baseline_only_mse(ctx, &sub)?));
+        return Ok((ctx.figures(baseline_only_mse(ctx, &sub)?), None));
     }
     let grid = lambda_grid(lmax, ctx.cfg.lambda_ratio, ctx.cfg.n_lambda);
     let cv = cross_validate(&sub, ctx.q, &factors, &w, &grid, &ctx.opts)?;
-    let best = cv.mean_mse.iter().copied().fold(f64::INFINITY, f64::min);
-    Ok(ctx.figures(best))
+    let (t, best) = cv
+        .mean_mse
+        .iter()
+        .enumerate()
+        .fold((0, f64::INFINITY), |acc, (i, m)| if *m < acc.1 { (i, *m) } else { acc });
+    let fit = problem.fit_path(&w, &grid[..=t], &ctx.opts, None)?.pop();
+    Ok((ctx.figures(best), fit))
 }
 
 /// Mean held-out squared error of the baseline a(z) alone (the first `q` columns).

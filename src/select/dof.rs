@@ -1,7 +1,7 @@
 //! The whole selection of one DoF: stages, confidence, alternates, baselines
 //! and effect surfaces, gathered into the report's [`DofResult`].
 
-use super::compare::{cv_for_set, envelope_correlation, linear_baseline, position_baseline};
+use super::compare::{cv_for_set, envelope_correlation, linear_baseline, position_baseline, relaxed_fit};
 use super::config::SelectConfig;
 use super::context::Context;
 use super::data::DofData;
@@ -113,7 +113,9 @@ pub fn select_dof(
     progress(Step::Compare);
     let phi = (last.tuned.chosen.phi_s, last.tuned.chosen.phi_z);
     let rows = ctx.design.rows().to_vec();
-    let refit_cv = cv_for_set(&ctx, &selected, phi)?;
+    // The final model: the sites the stages kept, refitted with weights 1 at
+    // the λ of smallest cross-validated error (relaxed lasso).
+    let (refit_cv, relaxed) = relaxed_fit(&ctx, &selected, phi)?;
 
     // alternates: strongly correlated, unselected, usable sites, swapped in
     let mut alternates: Vec<Vec<Alternate>> = vec![Vec::new(); data.sites.len()];
@@ -172,11 +174,9 @@ pub fn select_dof(
         .map(|j| j as f64 / (EFFECT_POSITION_POINTS - 1) as f64)
         .collect();
     let mut effects = Vec::new();
-    for (i, &g) in last.tuned.groups.iter().enumerate() {
-        if !selected.contains(&g) {
-            continue;
-        }
-        let coef = &last.tuned.fit.coef[i * ctx.pk..(i + 1) * ctx.pk];
+    for (i, &g) in selected.iter().enumerate() {
+        let Some(fit) = &relaxed else { break };
+        let coef = &fit.coef[i * ctx.pk..(i + 1) * ctx.pk];
         let vals = surface.evaluate(coef, &s_grid, &z_grid)?;
         effects.push(Effect {
             site: data.sites[g].clone(),
@@ -223,7 +223,7 @@ pub fn select_dof(
         })
         .collect();
 
-    let cv = rounded(ctx.figures(last.tuned.chosen.mean_mse));
+    let cv = rounded(refit_cv);
     let mut flags = Vec::new();
     let n_res = cfg.resamples;
     for &k in &selected {
