@@ -62,7 +62,7 @@
 //! `tol_kkt = 1e-6`. Every returned [`Fit`] carries both numbers.
 
 use faer::linalg::matmul::matmul;
-use faer::{Accum, Mat, Par, Side};
+use faer::{Accum, Mat, MatMut, MatRef, Par, Side};
 
 use super::gram::ProfiledGram;
 use super::penalty::inverse_transpose_lower;
@@ -510,6 +510,7 @@ impl GroupLasso {
         let mut ok = false;
         let mut buf = vec![0.0; m];
         let mut new = vec![0.0; m];
+        let mut dbuf = vec![0.0; m];
         while sweeps < budget {
             for (gi, &_k) in ws.iter().enumerate() {
                 let (s, e) = (gstart[gi], gstart[gi + 1]);
@@ -520,15 +521,19 @@ impl GroupLasso {
                 }
                 let new = &mut new[..sz];
                 group_update(r, &dw[s..e], thr[gi], norm(&eta[s..e]), new);
+                let mut changed = false;
                 for i in 0..sz {
                     let delta = new[i] - eta[s + i];
-                    if delta != 0.0 {
-                        let col = &qw[(s + i) * m..(s + i + 1) * m];
-                        for (gj, qj) in g.iter_mut().zip(col) {
-                            *gj -= qj * delta;
-                        }
-                        eta[s + i] = new[i];
-                    }
+                    dbuf[i] = delta;
+                    changed |= delta != 0.0;
+                    eta[s + i] = new[i];
+                }
+                if changed {
+                    // g −= Q[:, group] Δ  (faer matvec, SIMD dispatched at run time)
+                    let qblk = MatRef::from_column_major_slice(&qw[s * m..e * m], m, sz);
+                    let dcol = MatRef::from_column_major_slice(&dbuf[..sz], sz, 1);
+                    let gcol = MatMut::from_column_major_slice_mut(&mut g, m, 1);
+                    matmul(gcol, Accum::Add, qblk, dcol, -1.0, Par::Seq);
                 }
             }
             sweeps += 1;
@@ -635,13 +640,16 @@ fn norm(v: &[f64]) -> f64 {
 fn compact_gradient(qw: &[f64], cw: &[f64], eta: &[f64]) -> Vec<f64> {
     let m = cw.len();
     let mut g = cw.to_vec();
-    for (j, &e) in eta.iter().enumerate() {
-        if e != 0.0 {
-            for (gi, qi) in g.iter_mut().zip(&qw[j * m..(j + 1) * m]) {
-                *gi -= qi * e;
-            }
-        }
-    }
+    let q = MatRef::from_column_major_slice(qw, m, m);
+    let e = MatRef::from_column_major_slice(eta, m, 1);
+    matmul(
+        MatMut::from_column_major_slice_mut(&mut g, m, 1),
+        Accum::Add,
+        q,
+        e,
+        -1.0,
+        Par::Seq,
+    );
     g
 }
 
