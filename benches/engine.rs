@@ -15,7 +15,9 @@
 //! JSON header with folds, λ grid and our objectives) for
 //! `benches/engine-vs-skglm.sh`.
 //!
-//! Run: `cargo bench --bench engine`.
+//! Run: `cargo bench --bench engine`. Environment knobs: `ENGINE_BENCH_VERBOSE`
+//! (per-λ sweeps of the path), `ENGINE_BENCH_TOL_GAP` and
+//! `ENGINE_BENCH_ANDERSON` (solver options).
 
 use std::io::Write;
 use std::time::Instant;

@@ -621,8 +621,11 @@ impl GroupLasso {
         let mut buf = vec![0.0; m];
         let mut new = vec![0.0; m];
         let mut dbuf = vec![0.0; m];
-        let mut last_active: Vec<bool> = Vec::new();
-        let mut since_newton = 0;
+        // groups non-zero at the start (the warm start's active set)
+        let mut last_active: Vec<bool> = (0..ws.len())
+            .map(|k| eta[gstart[k]..gstart[k + 1]].iter().any(|&x| x != 0.0))
+            .collect();
+        let mut last_newton: Option<usize> = None;
         while sweeps < budget {
             for (gi, &_k) in ws.iter().enumerate() {
                 let (s, e) = (gstart[gi], gstart[gi + 1]);
@@ -663,8 +666,8 @@ impl GroupLasso {
                 let act: Vec<bool> = (0..ws.len())
                     .map(|k| eta[gstart[k]..gstart[k + 1]].iter().any(|&x| x != 0.0))
                     .collect();
-                if act == last_active && sweeps >= 3 && sweeps >= since_newton + 2 {
-                    since_newton = sweeps;
+                if act == last_active && last_newton.is_none_or(|s| sweeps >= s + 2) {
+                    last_newton = Some(sweeps);
                     if let Some((e2, g2)) = newton_dense(
                         qw,
                         &cw,
