@@ -122,7 +122,7 @@ impl Gram {
         if sign > 0.0 {
             self.n += other.n;
         } else {
-            self.n -= other.n;
+            self.n = self.n.saturating_sub(other.n);
         }
     }
 
@@ -140,7 +140,7 @@ impl Gram {
             n: if sign > 0.0 {
                 self.n + other.n
             } else {
-                self.n - other.n
+                self.n.saturating_sub(other.n)
             },
         }
     }

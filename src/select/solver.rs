@@ -46,9 +46,9 @@
 //! * Anderson extrapolation of the sweeps (Anderson 1965; as used for
 //!   coordinate descent by Bertrand & Massias 2021, *AISTATS*) is tried every
 //!   `anderson + 1` sweeps and kept only if it lowers the objective.
-//! * Newton steps on the active groups: once the set of non-zero groups is
-//!   unchanged between sweeps (and BCD has not converged within 3 sweeps),
-//!   the objective is smooth there and a Newton step is taken (Hessian
+//! * Newton steps on the active groups: whenever the set of non-zero groups
+//!   is the same as after the previous sweep (or as in the warm start), at
+//!   most every other sweep, the objective is smooth there and a Newton step is taken (Hessian
 //!   `Q_AA + blockdiag(α_k (I − u_k u_kᵀ))`, `α_k = λw_k/‖η_k‖`,
 //!   `u_k = η_k/‖η_k‖`), solved by conjugate gradients preconditioned with the
 //!   Cholesky factor of an earlier Hessian on the same coordinates, or by a
