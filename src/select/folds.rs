@@ -120,7 +120,7 @@ impl FoldGrams {
             let mut acc = Gram::zeros(dim);
             for (s, g) in segs.iter().zip(&grams) {
                 if s.start >= range.start && s.end <= range.end {
-                    acc = acc.add(g);
+                    acc.accumulate(g, 1.0);
                 }
             }
             acc
@@ -129,7 +129,11 @@ impl FoldGrams {
         let held: Vec<Gram> = folds.iter().map(|f| sum_over(&f.held)).collect();
         let train: Vec<Gram> = folds
             .iter()
-            .map(|f| total.sub(&sum_over(&f.excluded())))
+            .map(|f| {
+                let mut t = total.clone();
+                t.accumulate(&sum_over(&f.excluded()), -1.0);
+                t
+            })
             .collect();
         Ok(FoldGrams {
             total,

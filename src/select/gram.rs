@@ -106,6 +106,26 @@ impl Gram {
         self.combine(other, -1.0)
     }
 
+    /// Adds `sign · other` in place.
+    pub fn accumulate(&mut self, other: &Gram, sign: f64) {
+        let d = self.dim();
+        for j in 0..d {
+            let (a, b) = (self.zz.col_as_slice_mut(j), other.zz.col_as_slice(j));
+            for (x, y) in a.iter_mut().zip(b) {
+                *x += sign * y;
+            }
+        }
+        for (x, y) in self.zy.iter_mut().zip(&other.zy) {
+            *x += sign * y;
+        }
+        self.yy += sign * other.yy;
+        if sign > 0.0 {
+            self.n += other.n;
+        } else {
+            self.n = self.n.saturating_sub(other.n);
+        }
+    }
+
     fn combine(&self, other: &Gram, sign: f64) -> Gram {
         let d = self.dim();
         Gram {
@@ -120,7 +140,7 @@ impl Gram {
             n: if sign > 0.0 {
                 self.n + other.n
             } else {
-                self.n - other.n
+                self.n.saturating_sub(other.n)
             },
         }
     }

@@ -1,4 +1,4 @@
-//! Shared helpers of the selection-engine tests: fixture loading.
+//! Shared utilities of the selection-engine tests: fixture loading.
 #![allow(dead_code)]
 
 use serde_json::Value;
