@@ -10,7 +10,9 @@ use mirrorsite::simulate::{self, Role, Scenario, Truth};
 use std::path::PathBuf;
 
 fn fixture(name: &str) -> PathBuf {
-    PathBuf::from(env!("CARGO_MANIFEST_DIR")).join("tests/fixtures/select").join(name)
+    PathBuf::from(env!("CARGO_MANIFEST_DIR"))
+        .join("tests/fixtures/select")
+        .join(name)
 }
 
 struct Outcome {
@@ -72,7 +74,8 @@ fn check_scenario(name: &str) -> Outcome {
         for f in &faulty {
             assert!(!r.selected.contains(f), "{name}: faulty site {f} selected");
         }
-        out.final_fp.push(r.selected.iter().filter(|s| !informative(s)).count());
+        out.final_fp
+            .push(r.selected.iter().filter(|s| !informative(s)).count());
         out.stage_tp_fp.push(per_stage);
     }
     // The plan covers every DoF direction within the budget.
@@ -117,7 +120,10 @@ fn three_scenarios_against_truth() {
             let first = stages.first().unwrap().1;
             assert!(*fp <= first, "{name}: final FP {fp} > stage-1 FP {first}");
             for w in stages.windows(2) {
-                assert!(w[1].1 <= w[0].1, "{name}: FP rose between stages {stages:?}");
+                assert!(
+                    w[1].1 <= w[0].1,
+                    "{name}: FP rose between stages {stages:?}"
+                );
             }
         }
         fp_total += o.final_fp.iter().sum::<usize>();

@@ -143,12 +143,22 @@ pub fn plan(
         without.remove(&k);
         let r = sc.all(&without)?;
         let drops: Vec<f64> = now.iter().zip(&r).map(|(a, b)| (a - b).max(0.0)).collect();
-        let dofs: Vec<String> = selections
+        // The DoFs it serves: those whose own selection holds it; failing
+        // that (a site kept only for what it adds elsewhere), those that
+        // would lose more than 0.01 of R² without it.
+        let mut dofs: Vec<String> = selections
             .iter()
-            .enumerate()
-            .filter(|(d, s)| s.selected.contains(&k) || drops[*d] > 0.01)
-            .map(|(_, s)| s.result.dof.clone())
+            .filter(|s| s.selected.contains(&k))
+            .map(|s| s.result.dof.clone())
             .collect();
+        if dofs.is_empty() {
+            dofs = selections
+                .iter()
+                .enumerate()
+                .filter(|(d, _)| drops[*d] > 0.01)
+                .map(|(_, s)| s.result.dof.clone())
+                .collect();
+        }
         let mut alternates: Vec<String> = Vec::new();
         for s in selections {
             if let Some(site) = s.result.sites.iter().find(|x| x.site == sites[k]) {

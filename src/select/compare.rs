@@ -23,9 +23,16 @@ pub fn cv_for_set(ctx: &Context, groups: &[usize], phi: (f64, f64)) -> Result<Cv
 /// `groups` alone with weights 1 and smoothing `phi`, at the λ of smallest
 /// mean held-out error. Returns its cross-validated figures and the fit on
 /// all rows at that λ (none for an empty set).
-pub fn relaxed_fit(ctx: &Context, groups: &[usize], phi: (f64, f64)) -> Result<(CvFigures, Option<Fit>)> {
+pub fn relaxed_fit(
+    ctx: &Context,
+    groups: &[usize],
+    phi: (f64, f64),
+) -> Result<(CvFigures, Option<Fit>)> {
     if groups.is_empty() {
-        return Ok((ctx.figures(baseline_only_mse(ctx, &ctx.subset_folds(&[]))?), None));
+        return Ok((
+            ctx.figures(baseline_only_mse(ctx, &ctx.subset_folds(&[]))?),
+            None,
+        ));
     }
     let l = ctx.factor(phi.0, phi.1)?;
     let factors = vec![l; groups.len()];
@@ -43,7 +50,10 @@ pub fn relaxed_fit(ctx: &Context, groups: &[usize], phi: (f64, f64)) -> Result<(
         .mean_mse
         .iter()
         .enumerate()
-        .fold((0, f64::INFINITY), |acc, (i, m)| if *m < acc.1 { (i, *m) } else { acc });
+        .fold(
+            (0, f64::INFINITY),
+            |acc, (i, m)| if *m < acc.1 { (i, *m) } else { acc },
+        );
     let fit = problem.fit_path(&w, &grid[..=t], &ctx.opts, None)?.pop();
     Ok((ctx.figures(best), fit))
 }

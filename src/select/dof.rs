@@ -1,7 +1,9 @@
 //! The whole selection of one DoF: stages, confidence, alternates, baselines
 //! and effect surfaces, gathered into the report's [`DofResult`].
 
-use super::compare::{cv_for_set, envelope_correlation, linear_baseline, position_baseline, relaxed_fit};
+use super::compare::{
+    cv_for_set, envelope_correlation, linear_baseline, position_baseline, relaxed_fit,
+};
 use super::config::SelectConfig;
 use super::context::Context;
 use super::data::DofData;
