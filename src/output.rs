@@ -101,3 +101,38 @@ pub fn write_file_atomic(path: &Path, bytes: &[u8]) -> Result<()> {
         Error::io(path, e)
     })
 }
+
+/// `path` made absolute with every existing ancestor's symbolic links resolved.
+fn resolved(path: &Path) -> PathBuf {
+    let abs = std::path::absolute(path).unwrap_or_else(|_| path.to_path_buf());
+    let mut existing = abs.as_path();
+    let mut rest = Vec::new();
+    while !existing.exists() {
+        match (existing.parent(), existing.file_name()) {
+            (Some(p), Some(n)) => {
+                rest.push(n.to_os_string());
+                existing = p;
+            }
+            _ => break,
+        }
+    }
+    let mut out = existing.canonicalize().unwrap_or_else(|_| existing.to_path_buf());
+    for n in rest.iter().rev() {
+        out.push(n);
+    }
+    out
+}
+
+/// Refuses an output folder that lies inside (or is) an input folder:
+/// mirrorsite never writes into a session folder.
+pub fn ensure_outside(out: &Path, input_dir: &Path) -> Result<()> {
+    let root = resolved(input_dir);
+    if resolved(out).starts_with(&root) {
+        return Err(Error::Argument(format!(
+            "{} lies inside the session folder {}; mirrorsite never writes there, choose an output folder elsewhere",
+            out.display(),
+            input_dir.display()
+        )));
+    }
+    Ok(())
+}

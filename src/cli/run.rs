@@ -71,16 +71,7 @@ fn progress_bar(quiet: bool, cfg: &Config, n_dofs: usize) -> ProgressBar {
 
 fn analysis(args: &Args, cfg: &Config) -> mirrorsite::Result<(Analysis, ProgressBar)> {
     let session = mirrorsite::session::read(&args.session)?;
-    if let Ok(out) = args.out.canonicalize() {
-        if let Ok(root) = args.session.canonicalize() {
-            if out.starts_with(&root) {
-                return Err(mirrorsite::Error::Argument(format!(
-                    "{} lies inside the session folder; mirrorsite never writes there",
-                    args.out.display()
-                )));
-            }
-        }
-    }
+    mirrorsite::output::ensure_outside(&args.out, &args.session)?;
     if args.out.exists() && !args.force {
         return Err(mirrorsite::Error::Argument(format!(
             "{} already exists; choose a new output folder or pass --force to replace it",
