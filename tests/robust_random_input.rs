@@ -261,7 +261,7 @@ fn csv_table_reader() {
     let plain = t.path().join("emg.csv");
     let gz = t.path().join("emg.csv.gz");
     let mut k = 0usize;
-    battery("table", &seeds, 1500, |input| {
+    battery("table", &seeds, 1000, |input| {
         k += 1;
         // every fifth case goes through gzip, intact or with its bytes mutated
         let (path, text) = if k % 5 == 0 {
@@ -301,7 +301,7 @@ fn manifest_reader() {
     let seeds = vec![std::fs::read(base_session().join("session.toml")).unwrap()];
     let t = tempfile::tempdir().unwrap();
     let file = t.path().join("session.toml");
-    battery("manifest", &seeds, 2000, |input| {
+    battery("manifest", &seeds, 1200, |input| {
         // through the file reader (which rejects NUL and non-UTF-8 bytes) ...
         std::fs::write(&file, input).unwrap();
         let first = match session::read_manifest(t.path()) {
@@ -339,7 +339,7 @@ fn events_reader() {
     let seeds = vec![std::fs::read(base_session().join("events.csv")).unwrap()];
     let t = tempfile::tempdir().unwrap();
     let file = t.path().join("events.csv");
-    battery("events", &seeds, 1500, |input| {
+    battery("events", &seeds, 1000, |input| {
         std::fs::write(&file, input).unwrap();
         match session::read_events(&file, m, emg) {
             Ok(blocks) => {
@@ -364,7 +364,7 @@ fn protocol_parser() {
         .map(|f| std::fs::read(root().join("protocols").join(f)).unwrap())
         .collect();
     let file = Path::new("protocols/mutated.toml");
-    battery("protocol", &seeds, 1500, |input| {
+    battery("protocol", &seeds, 1000, |input| {
         let text = String::from_utf8_lossy(input);
         let problems = protocol::check_source(&text, file);
         for e in &problems {
@@ -402,7 +402,7 @@ fn scenario_parser() {
         std::fs::read(root().join("demo-data/demo-scenario.toml")).unwrap(),
     ];
     let file = Path::new("mutated-scenario.toml");
-    battery("scenario", &seeds, 1500, |input| {
+    battery("scenario", &seeds, 1000, |input| {
         let text = String::from_utf8_lossy(input);
         match Scenario::from_toml(file, &text) {
             Ok(sc) => {
