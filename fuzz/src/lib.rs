@@ -19,14 +19,20 @@ pub fn scratch(name: &str) -> PathBuf {
 pub fn check_error(e: &InputError, file: &Path, bytes: Option<&[u8]>) {
     assert_eq!(e.file, file, "the error names another file: {e}");
     let shown = e.to_string();
-    assert!(!shown.contains('\n'), "a message of several lines: {shown:?}");
+    assert!(
+        !shown.contains('\n'),
+        "a message of several lines: {shown:?}"
+    );
     assert!(
         shown.starts_with(&file.display().to_string()),
         "the message starts with the file: {shown}"
     );
     if let (Some(line), Some(bytes)) = (e.line, bytes) {
         let lines = bytes.iter().filter(|&&b| b == b'\n').count() + 1;
-        assert!(line >= 1 && line <= lines, "line {line} of {lines}: {shown}");
+        assert!(
+            line >= 1 && line <= lines,
+            "line {line} of {lines}: {shown}"
+        );
     }
 }
 
