@@ -27,6 +27,11 @@ if ! cargo +nightly fuzz --version >/dev/null 2>&1; then
     exit 0
 fi
 
+# The CSV targets write each input to a scratch file: keep it in memory.
+if [ -z "${TMPDIR:-}" ] && [ -w /dev/shm ]; then
+    export TMPDIR=/dev/shm
+fi
+
 failed=()
 for t in "${targets[@]}"; do
     mkdir -p "fuzz/corpus/$t"

@@ -3,14 +3,21 @@
 
 use libfuzzer_sys::fuzz_target;
 use mirrorsite::session::read_events;
+use mirrorsite::session::{Manifest, Recording};
 use mirrorsite_fuzz::{check_error, scratch, seed_emg, seed_manifest};
+use std::sync::OnceLock;
+
+static SEED: OnceLock<(Manifest, Recording)> = OnceLock::new();
 
 fuzz_target!(|data: &[u8]| {
-    let m = seed_manifest();
-    let emg = seed_emg(&m);
+    let (m, emg) = SEED.get_or_init(|| {
+        let m = seed_manifest();
+        let emg = seed_emg(&m);
+        (m, emg)
+    });
     let path = scratch("events.csv");
     std::fs::write(&path, data).expect("scratch file");
-    match read_events(&path, &m, &emg) {
+    match read_events(&path, m, emg) {
         Ok(blocks) => {
             for b in blocks {
                 assert!(b.end_s > b.start_s);
