@@ -25,7 +25,14 @@ fn run_writes_the_whole_report_and_nothing_else() {
     let stderr = String::from_utf8_lossy(&res.stderr);
     assert!(res.status.success(), "{stderr}");
     assert!(!stderr.contains("panicked"));
-    for f in ["sites.json", "sites.csv", "aligned.csv", "sheet.pdf", "sheet.html", "alignment.json"] {
+    for f in [
+        "sites.json",
+        "sites.csv",
+        "aligned.csv",
+        "sheet.pdf",
+        "sheet.html",
+        "alignment.json",
+    ] {
         assert!(out.join(f).is_file(), "missing {f}");
     }
     assert!(out.join("figures/site-map.svg").is_file());
@@ -59,7 +66,8 @@ fn run_writes_the_whole_report_and_nothing_else() {
         .any(|f| f["where"] == "S4" && f["what"] == "bad-signal"));
     // aligned.csv has the contract header
     let header = get_line(&out.join("aligned.csv"), 1);
-    assert!(header.starts_with("time_s,intact_time_s,fingers_pos,fingers_vel,wrist_pos,wrist_vel,S1_env"));
+    assert!(header
+        .starts_with("time_s,intact_time_s,fingers_pos,fingers_vel,wrist_pos,wrist_vel,S1_env"));
     // the summary names the plan and the sheet
     let stdout = String::from_utf8_lossy(&res.stdout);
     assert!(stdout.contains("plan (3 channels)"), "{stdout}");
