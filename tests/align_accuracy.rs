@@ -45,6 +45,16 @@ fn figures(name: &str) -> ((f64, f64), (f64, f64), Aligned) {
         "{name}: all non-rest rows median {:.1} ms p90 {:.1} ms; paced+free median {:.1} ms p90 {:.1} ms",
         a.0, a.1, m.0, m.1
     );
+    for task in ["paced", "hold-release", "free"] {
+        let e = errors_in(&al, &truth, |t| t == task);
+        if !e.is_empty() {
+            let (m, p) = q(&e);
+            eprintln!(
+                "  {task:<13} median {m:.1} ms p90 {p:.1} ms ({} rows)",
+                e.len()
+            );
+        }
+    }
     for b in &al.blocks {
         if let Some(f) = &b.figures {
             eprintln!(

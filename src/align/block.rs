@@ -6,6 +6,7 @@ use super::config::AlignConfig;
 use super::dtw::{dtw_rows, Cost, DtwOptions, StepPattern};
 use super::features::{lerp_at, mean_sd, moving_average, nnls_intercept};
 use super::quality::{pearson, quantile, Figures};
+use super::refine::{refine, RefineChannel, RefineOptions};
 use super::warpmap::{limit_slope, raw_lag, whittaker};
 use crate::Result;
 
@@ -60,7 +61,7 @@ pub struct BlockOutcome {
 }
 
 /// Number of leading basis series (speed times effort) shared by the two directions of a DoF.
-const SHARED: usize = 2;
+const SHARED: usize = 4;
 
 /// Smallest correlation between a composite and its intact feature for the feature to take part.
 const MIN_FEATURE_CORR: f64 = 0.3;
@@ -349,6 +350,32 @@ fn warp(
     let weights = informativeness(d, composite, intact, &raw);
     let mut lag = whittaker(&raw, &weights, cfg.smooth_s * d.rate_hz)?;
     limit_slope(&mut lag, &weights, cfg.max_slope);
+    for l in &mut lag {
+        *l = l.clamp(-(r as f64), r as f64);
+    }
+    if cfg.refine_iterations == 0 {
+        return Ok(lag);
+    }
+    let chans: Vec<RefineChannel> = composite
+        .iter()
+        .zip(intact)
+        .map(|(a, f)| RefineChannel {
+            composite: a,
+            intact: f,
+            scale: 1.0,
+        })
+        .collect();
+    let o = RefineOptions {
+        knot: cfg.knot_s * d.rate_hz,
+        period: cfg.refine_period_s * d.rate_hz,
+        max_lag: r as f64,
+        iterations: cfg.refine_iterations,
+        tukey_c: cfg.robust_c,
+        weight_range: (0, n),
+    };
+    let mut lag = refine(&chans, d.ext, &lag, &o).lag;
+    let ones = vec![1.0; n];
+    limit_slope(&mut lag, &ones, cfg.max_slope);
     for l in &mut lag {
         *l = l.clamp(-(r as f64), r as f64);
     }

@@ -31,6 +31,7 @@ pub mod kinematics;
 /// Writers of `aligned.csv`, `alignment.json` and the before/after figures.
 pub mod output;
 pub mod quality;
+pub mod refine;
 pub mod warpmap;
 
 pub use config::{AlignConfig, QualityThresholds};
@@ -303,9 +304,28 @@ pub fn align(s: &Session, env: &Envelopes, blocks: &[Block], cfg: &AlignConfig) 
             let ret = cfg.min_speed_dps;
             for (sign, word) in [(1.0, "positive"), (-1.0, "negative")] {
                 let speed = series(&|_, v| (sign * v).max(0.0));
+                // Speed away from and toward the resting posture, each with a
+                // position-dependent effort: a return toward rest may be partly or
+                // wholly passive (relaxation after a hold), so it gets its own weights.
+                let away = |p: f64, v: f64| {
+                    if (p - rest) * v >= 0.0 {
+                        (sign * v).max(0.0)
+                    } else {
+                        0.0
+                    }
+                };
+                let toward = |p: f64, v: f64| {
+                    if (p - rest) * v < 0.0 {
+                        (sign * v).max(0.0)
+                    } else {
+                        0.0
+                    }
+                };
                 let basis = vec![
-                    series(&|p, v| (sign * v).max(0.0) * (1.0 - z(p))),
-                    series(&|p, v| (sign * v).max(0.0) * z(p)),
+                    series(&|p, v| away(p, v) * (1.0 - z(p))),
+                    series(&|p, v| away(p, v) * z(p)),
+                    series(&|p, v| toward(p, v) * (1.0 - z(p))),
+                    series(&|p, v| toward(p, v) * z(p)),
                     series(&|p, _| (p - rest).max(0.0)),
                     series(&|p, _| (rest - p).max(0.0)),
                     // Held displacement: gone as soon as the posture returns toward rest
