@@ -356,9 +356,14 @@ fn warp(
     if cfg.refine_iterations == 0 {
         return Ok(lag);
     }
+    let (composite, intact) = if cfg.log_floor > 0.0 {
+        log_features(d, composite, intact, cfg.log_floor)
+    } else {
+        (composite.to_vec(), intact.to_vec())
+    };
     let chans: Vec<RefineChannel> = composite
         .iter()
-        .zip(intact)
+        .zip(&intact)
         .map(|(a, f)| RefineChannel {
             composite: a,
             intact: f,
@@ -380,6 +385,38 @@ fn warp(
         *l = l.clamp(-(r as f64), r as f64);
     }
     Ok(lag)
+}
+
+/// Variance-stabilised features for the warp: the amplitude noise of an EMG
+/// envelope grows with its level (the envelope of Gaussian noise has a
+/// constant coefficient of variation), so differences of raw levels weigh
+/// the peaks, where timing is vaguest, most. Each feature x = s·z (z
+/// standardised, s the channel weight) becomes s·ln(ε + max(z − z₀, 0)),
+/// z₀ the intact feature's 5 % quantile in the window and ε the floor in
+/// standard deviations (which caps the weight of the quiet baseline).
+fn log_features(
+    d: &BlockData,
+    composite: &[Vec<f64>],
+    intact: &[Vec<f64>],
+    eps: f64,
+) -> (Vec<Vec<f64>>, Vec<Vec<f64>>) {
+    let n = d.n;
+    let mut out_c = Vec::with_capacity(composite.len());
+    let mut out_i = Vec::with_capacity(intact.len());
+    for (a, f) in composite.iter().zip(intact) {
+        let win = &f[d.ext..d.ext + n];
+        let (_, s) = mean_sd(win);
+        if s <= 0.0 {
+            out_c.push(a.clone());
+            out_i.push(f.clone());
+            continue;
+        }
+        let base = quantile(win, 0.05) / s;
+        let tf = |x: f64| s * (eps + (x / s - base).max(0.0)).ln();
+        out_c.push(a.iter().map(|&x| tf(x)).collect());
+        out_i.push(f.iter().map(|&x| tf(x)).collect());
+    }
+    (out_c, out_i)
 }
 
 /// Weight of each window sample in the map smoother: where both sides
