@@ -6,7 +6,6 @@ use super::config::AlignConfig;
 use super::dtw::{dtw_rows, Cost, DtwOptions, StepPattern};
 use super::features::{lerp_at, mean_sd, moving_average, nnls_intercept};
 use super::quality::{pearson, quantile, Figures};
-use super::refine::{refine, RefineChannel, RefineOptions};
 use super::warpmap::{limit_slope, raw_lag, whittaker};
 use crate::Result;
 
@@ -353,70 +352,7 @@ fn warp(
     for l in &mut lag {
         *l = l.clamp(-(r as f64), r as f64);
     }
-    if cfg.refine_iterations == 0 {
-        return Ok(lag);
-    }
-    let (composite, intact) = if cfg.log_floor > 0.0 {
-        log_features(d, composite, intact, cfg.log_floor)
-    } else {
-        (composite.to_vec(), intact.to_vec())
-    };
-    let chans: Vec<RefineChannel> = composite
-        .iter()
-        .zip(&intact)
-        .map(|(a, f)| RefineChannel {
-            composite: a,
-            intact: f,
-            scale: 1.0,
-        })
-        .collect();
-    let o = RefineOptions {
-        knot: cfg.knot_s * d.rate_hz,
-        period: cfg.refine_period_s * d.rate_hz,
-        max_lag: r as f64,
-        iterations: cfg.refine_iterations,
-        tukey_c: cfg.robust_c,
-        weight_range: (0, n),
-    };
-    let mut lag = refine(&chans, d.ext, &lag, &o).lag;
-    let ones = vec![1.0; n];
-    limit_slope(&mut lag, &ones, cfg.max_slope);
-    for l in &mut lag {
-        *l = l.clamp(-(r as f64), r as f64);
-    }
     Ok(lag)
-}
-
-/// Variance-stabilised features for the warp: the amplitude noise of an EMG
-/// envelope grows with its level (the envelope of Gaussian noise has a
-/// constant coefficient of variation), so differences of raw levels weigh
-/// the peaks, where timing is vaguest, most. Each feature x = s·z (z
-/// standardised, s the channel weight) becomes s·ln(ε + max(z − z₀, 0)),
-/// z₀ the intact feature's 5 % quantile in the window and ε the floor in
-/// standard deviations (which caps the weight of the quiet baseline).
-fn log_features(
-    d: &BlockData,
-    composite: &[Vec<f64>],
-    intact: &[Vec<f64>],
-    eps: f64,
-) -> (Vec<Vec<f64>>, Vec<Vec<f64>>) {
-    let n = d.n;
-    let mut out_c = Vec::with_capacity(composite.len());
-    let mut out_i = Vec::with_capacity(intact.len());
-    for (a, f) in composite.iter().zip(intact) {
-        let win = &f[d.ext..d.ext + n];
-        let (_, s) = mean_sd(win);
-        if s <= 0.0 {
-            out_c.push(a.clone());
-            out_i.push(f.clone());
-            continue;
-        }
-        let base = quantile(win, 0.05) / s;
-        let tf = |x: f64| s * (eps + (x / s - base).max(0.0)).ln();
-        out_c.push(a.iter().map(|&x| tf(x)).collect());
-        out_i.push(f.iter().map(|&x| tf(x)).collect());
-    }
-    (out_c, out_i)
 }
 
 /// Weight of each window sample in the map smoother: where both sides

@@ -34,17 +34,6 @@ pub struct AlignConfig {
     /// units of the standardised squared feature difference: the path leaves
     /// the diagonal only where the features pay for it, not to chase envelope noise.
     pub side_penalty: f64,
-    /// Floor ε of the log transform of the warp features, in standard
-    /// deviations (0: warp the raw levels).
-    pub log_floor: f64,
-    /// Knot spacing of the lag spline fitted after DTW, s.
-    pub knot_s: f64,
-    /// Half-gain period of the roughness penalty of that spline, s.
-    pub refine_period_s: f64,
-    /// Gauss–Newton iterations of the refinement (0: DTW map only).
-    pub refine_iterations: usize,
-    /// Tukey biweight constant of the refinement's robust weights, in robust residual scales.
-    pub robust_c: f64,
     /// Number of fit–warp rounds (composite activation refitted on the warped intact side).
     pub rounds: usize,
     /// Quality thresholds.
@@ -64,11 +53,6 @@ impl Default for AlignConfig {
             min_speed_dps: 5.0,
             side_penalty: 1.0,
             rounds: 3,
-            log_floor: 0.1,
-            knot_s: 0.1,
-            refine_period_s: 0.3,
-            refine_iterations: 0,
-            robust_c: 4.685,
             quality: QualityThresholds::default(),
         }
     }
@@ -118,12 +102,6 @@ impl AlignConfig {
                 return Err(("margin_s".into(), "must be a number ≥ 0".into()));
             }
         }
-        if !(self.log_floor.is_finite() && self.log_floor >= 0.0) {
-            return Err(("log_floor".into(), "must be a number ≥ 0".into()));
-        }
-        pos(self.knot_s, "knot_s")?;
-        pos(self.refine_period_s, "refine_period_s")?;
-        pos(self.robust_c, "robust_c")?;
         if self.rounds == 0 {
             return Err(("rounds".into(), "must be at least 1".into()));
         }
@@ -205,11 +183,6 @@ band, slope limit, expected electro-mechanical delay, map smoothing and the bloc
         ("kinematics_smooth_s", "Gaussian sigma in s of the local linear smoother of the intact angles (damps glove noise in the velocity). Common practice, no source."),
         ("min_speed_dps", "RMS intact speed in deg/s below which a DoF counts as still in a block. Common practice, no source."),
         ("side_penalty", "Cost added to each compression or expansion step of the DTW (in standardised squared feature units), so the path leaves the diagonal only where the features pay for it; as dtaidistance's penalty squared. Tuned on simulated sessions."),
-        ("log_floor", "Floor in standard deviations of the log transform applied to both sides' features before warping (variance stabilising: an envelope's noise grows with its level); 0 warps raw levels."),
-        ("knot_s", "Knot spacing in s of the cubic-spline lag curve fitted after DTW (Gauss-Newton refinement)."),
-        ("refine_period_s", "Half-gain period in s of the second-difference penalty on that spline (P-splines, Eilers & Marx 1996): lag changes faster than this are damped; flat stretches are bridged straight."),
-        ("refine_iterations", "Gauss-Newton iterations of the refinement; 0 keeps the smoothed DTW map."),
-        ("robust_c", "Tukey biweight constant (robust scales) of the refinement's weights: samples the EMG cannot explain, such as a passive return after a hold, drop out. 4.685 is the usual 95%-efficiency value."),
         ("rounds", "Fit-warp rounds: composites refitted through the map and warped again."),
         ("quality", "Thresholds of the per-block verdict ok / doubtful / failed."),
         ("quality.fail_corr", "Feature correlation after warping below which a block fails."),

@@ -10,7 +10,14 @@
 //!    ([`features`]): intact speed and displacement per direction of each
 //!    moving DoF, against composite EMG activations fitted to them, the EMG
 //!    shifted later by the expected electro-mechanical delay (EMD) so that the
-//!    matched intact moment is that of the *intended* posture;
+//!    matched intact moment is that of the *intended* posture. Speed away
+//!    from the resting posture and speed back toward it are separate basis
+//!    series with their own non-negative weights: a return toward rest may be
+//!    passive (the relaxation after a hold shows no agonist EMG), and a fit
+//!    that forced EMG onto it would bend the warp there. With its weight at
+//!    zero the passive return carries no timing, the release (the end of the
+//!    holding activity) does, and the map runs straight from the release to
+//!    the next active move;
 //! 3. warps them with banded, slope-limited DTW ([`dtw`]), turns the path
 //!    into a smooth strictly increasing map ([`warpmap`]), refits the
 //!    composites through the map and warps again;
@@ -31,7 +38,6 @@ pub mod kinematics;
 /// Writers of `aligned.csv`, `alignment.json` and the before/after figures.
 pub mod output;
 pub mod quality;
-pub mod refine;
 pub mod warpmap;
 
 pub use config::{AlignConfig, QualityThresholds};
