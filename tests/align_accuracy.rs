@@ -5,11 +5,11 @@
 //! median of |intact_time_s − true intact time| at most 15 ms and the 90th
 //! percentile at most 35 ms, in each of three scenarios: a drifting lag; a lag
 //! varying within cycles; a clock offset with the intact hand leading and
-//! other EMG and glove rates. `full_target_*` checks exactly that and is
-//! ignored while it is not met (hold-release blocks, and the within-cycle
-//! lag, are not yet tracked closely enough); the other tests pin what the
-//! aligner achieves now so that it cannot silently get worse, and check that a
-//! block that was not mirrored is marked failed.
+//! other EMG and glove rates. The drift and offset scenarios meet it; the
+//! within-cycle scenario does not (its ±60 ms wobble with a 2 s period is
+//! below what the envelopes resolve), so its full-target test is ignored and
+//! its figures are pinned instead. Every scenario also checks that a block
+//! that was not mirrored is marked failed and its rows are unusable.
 
 mod align_support;
 
@@ -45,6 +45,16 @@ fn figures(name: &str) -> ((f64, f64), (f64, f64), Aligned) {
         "{name}: all non-rest rows median {:.1} ms p90 {:.1} ms; paced+free median {:.1} ms p90 {:.1} ms",
         a.0, a.1, m.0, m.1
     );
+    for task in ["paced", "hold-release", "free"] {
+        let e = errors_in(&al, &truth, |t| t == task);
+        if !e.is_empty() {
+            let (m, p) = q(&e);
+            eprintln!(
+                "  {task:<13} median {m:.1} ms p90 {p:.1} ms ({} rows)",
+                e.len()
+            );
+        }
+    }
     for b in &al.blocks {
         if let Some(f) = &b.figures {
             eprintln!(
@@ -91,40 +101,65 @@ fn verdicts(name: &str, al: &Aligned) {
     }
 }
 
-// Pinned figures: what the aligner achieves now, plus about 20 % headroom.
+/// The issue's accuracy target over all non-rest rows, holds included.
+fn assert_full_target(name: &str, all: (f64, f64)) {
+    assert!(
+        all.0 <= 15.0 && all.1 <= 35.0,
+        "{name}: median / p90 {all:?} ms, target 15 / 35 ms"
+    );
+}
+
+/// (median, p90) in ms over the rows of one task.
+fn task_figures(name: &str, task: &str) -> (f64, f64) {
+    let (al, truth) = run(name);
+    let e = errors_in(&al, &truth, |t| t == task);
+    (quantile(&e, 0.5) * 1e3, quantile(&e, 0.9) * 1e3)
+}
+
+// Besides the target, each test pins what the aligner achieves now (about
+// 20 % headroom) so that it cannot silently get worse.
 
 #[test]
 fn drifting_lag() {
     let (all, moving, al) = figures("drift");
     verdicts("drift", &al);
-    // Measured: paced+free 8.2 / 21.8 ms, all 10.6 / 109.6 ms.
-    assert!(moving.0 <= 10.0 && moving.1 <= 27.0, "{moving:?}");
-    assert!(all.0 <= 13.0 && all.1 <= 132.0, "{all:?}");
-}
-
-#[test]
-fn lag_varying_within_cycles() {
-    let (all, moving, al) = figures("cycle");
-    verdicts("cycle", &al);
-    // Measured: paced+free 32.0 / 70.7 ms, all 36.1 / 92.4 ms.
-    assert!(moving.0 <= 39.0 && moving.1 <= 85.0, "{moving:?}");
-    assert!(all.0 <= 44.0 && all.1 <= 111.0, "{all:?}");
+    assert_full_target("drift", all);
+    // Measured: all 11.7 / 28.9 ms; paced+free 8.3 / 24.3 ms.
+    assert!(moving.0 <= 10.0 && moving.1 <= 29.0, "{moving:?}");
 }
 
 #[test]
 fn clock_offset_leading_intact_hand_and_an_unmirrored_block() {
     let (all, moving, al) = figures("offset");
     verdicts("offset", &al);
-    // Measured: paced+free 12.0 / 28.2 ms, all 15.2 / 142.8 ms.
-    assert!(moving.0 <= 15.0 && moving.1 <= 34.0, "{moving:?}");
-    assert!(all.0 <= 18.5 && all.1 <= 172.0, "{all:?}");
+    assert_full_target("offset", all);
+    // Measured: all 10.8 / 25.2 ms; paced+free 10.3 / 24.3 ms.
+    assert!(moving.0 <= 12.5 && moving.1 <= 29.0, "{moving:?}");
 }
 
 #[test]
-#[ignore = "issue target not yet met: hold-release blocks and the within-cycle lag"]
-fn full_target_in_every_scenario() {
-    for name in ["drift", "cycle", "offset"] {
-        let (all, _, _) = figures(name);
-        assert!(all.0 <= 15.0 && all.1 <= 35.0, "{name}: {all:?}");
-    }
+fn hold_release_blocks_are_tracked_through_the_passive_return() {
+    // Measured: drift 21.2 / 34.6 ms, offset 12.8 / 29.5 ms (before the
+    // speed-toward-rest features: 106 / 318 ms in drift).
+    let d = task_figures("drift", "hold-release");
+    assert!(d.0 <= 25.5 && d.1 <= 42.0, "drift hold-release {d:?}");
+    let o = task_figures("offset", "hold-release");
+    assert!(o.0 <= 15.5 && o.1 <= 36.0, "offset hold-release {o:?}");
+}
+
+#[test]
+fn lag_varying_within_cycles() {
+    let (all, moving, al) = figures("cycle");
+    verdicts("cycle", &al);
+    // Measured: all 32.3 / 74.0 ms; paced+free 31.5 / 71.5 ms: the ±60 ms,
+    // 2 s wobble is tracked only in part (see the ignored test below).
+    assert!(moving.0 <= 38.0 && moving.1 <= 86.0, "{moving:?}");
+    assert!(all.0 <= 39.0 && all.1 <= 89.0, "{all:?}");
+}
+
+#[test]
+#[ignore = "not met: the envelope noise hides a ±60 ms lag wobble with a 2 s period"]
+fn full_target_lag_varying_within_cycles() {
+    let (all, _, _) = figures("cycle");
+    assert_full_target("cycle", all);
 }

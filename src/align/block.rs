@@ -60,7 +60,7 @@ pub struct BlockOutcome {
 }
 
 /// Number of leading basis series (speed times effort) shared by the two directions of a DoF.
-const SHARED: usize = 2;
+const SHARED: usize = 4;
 
 /// Smallest correlation between a composite and its intact feature for the feature to take part.
 const MIN_FEATURE_CORR: f64 = 0.3;

@@ -10,7 +10,14 @@
 //!    ([`features`]): intact speed and displacement per direction of each
 //!    moving DoF, against composite EMG activations fitted to them, the EMG
 //!    shifted later by the expected electro-mechanical delay (EMD) so that the
-//!    matched intact moment is that of the *intended* posture;
+//!    matched intact moment is that of the *intended* posture. Speed away
+//!    from the resting posture and speed back toward it are separate basis
+//!    series with their own non-negative weights: a return toward rest may be
+//!    passive (the relaxation after a hold shows no agonist EMG), and a fit
+//!    that forced EMG onto it would bend the warp there. With its weight at
+//!    zero the passive return carries no timing, the release (the end of the
+//!    holding activity) does, and the map runs straight from the release to
+//!    the next active move;
 //! 3. warps them with banded, slope-limited DTW ([`dtw`]), turns the path
 //!    into a smooth strictly increasing map ([`warpmap`]), refits the
 //!    composites through the map and warps again;
@@ -303,9 +310,28 @@ pub fn align(s: &Session, env: &Envelopes, blocks: &[Block], cfg: &AlignConfig) 
             let ret = cfg.min_speed_dps;
             for (sign, word) in [(1.0, "positive"), (-1.0, "negative")] {
                 let speed = series(&|_, v| (sign * v).max(0.0));
+                // Speed away from and toward the resting posture, each with a
+                // position-dependent effort: a return toward rest may be partly or
+                // wholly passive (relaxation after a hold), so it gets its own weights.
+                let away = |p: f64, v: f64| {
+                    if (p - rest) * v >= 0.0 {
+                        (sign * v).max(0.0)
+                    } else {
+                        0.0
+                    }
+                };
+                let toward = |p: f64, v: f64| {
+                    if (p - rest) * v < 0.0 {
+                        (sign * v).max(0.0)
+                    } else {
+                        0.0
+                    }
+                };
                 let basis = vec![
-                    series(&|p, v| (sign * v).max(0.0) * (1.0 - z(p))),
-                    series(&|p, v| (sign * v).max(0.0) * z(p)),
+                    series(&|p, v| away(p, v) * (1.0 - z(p))),
+                    series(&|p, v| away(p, v) * z(p)),
+                    series(&|p, v| toward(p, v) * (1.0 - z(p))),
+                    series(&|p, v| toward(p, v) * z(p)),
                     series(&|p, _| (p - rest).max(0.0)),
                     series(&|p, _| (rest - p).max(0.0)),
                     // Held displacement: gone as soon as the posture returns toward rest
