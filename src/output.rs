@@ -3,7 +3,9 @@
 //! Outputs are written into a hidden temporary sibling of the target folder
 //! and renamed into place only when complete, so a crash or a kill leaves no
 //! half-written output folder (at most a hidden `.<name>.partial-<pid>`
-//! sibling). An existing target is never replaced unless asked.
+//! sibling). An existing target is never replaced unless asked. Such a
+//! leftover, whose process is no longer alive, is removed by the next
+//! [`Staging::new`] of the same target.
 
 use crate::error::{Error, Result};
 use std::path::{Path, PathBuf};
@@ -36,6 +38,7 @@ impl Staging {
             _ => PathBuf::from("."),
         };
         std::fs::create_dir_all(&parent).map_err(|e| Error::io(&parent, e))?;
+        remove_stale_partials(&parent, &name);
         let tmp = parent.join(format!(".{name}.partial-{}", std::process::id()));
         if tmp.exists() {
             std::fs::remove_dir_all(&tmp).map_err(|e| Error::io(&tmp, e))?;
@@ -84,6 +87,37 @@ impl Drop for Staging {
     fn drop(&mut self) {
         if !self.done {
             let _ = std::fs::remove_dir_all(&self.tmp);
+        }
+    }
+}
+
+/// Whether process `pid` is alive; `true` when it cannot be told (no `/proc`).
+fn pid_alive(pid: u32) -> bool {
+    let proc = Path::new("/proc");
+    if !proc.join("self").exists() {
+        return true;
+    }
+    pid == std::process::id() || proc.join(pid.to_string()).exists()
+}
+
+/// Removes `.<name>.partial-<pid>` folders in `parent` left by processes
+/// that are no longer alive (killed mid-way).
+fn remove_stale_partials(parent: &Path, name: &str) {
+    let prefix = format!(".{name}.partial-");
+    let Ok(rd) = std::fs::read_dir(parent) else {
+        return;
+    };
+    for e in rd.flatten() {
+        let file = e.file_name().to_string_lossy().into_owned();
+        let Some(rest) = file.strip_prefix(&prefix) else {
+            continue;
+        };
+        let digits: String = rest.chars().take_while(char::is_ascii_digit).collect();
+        let Ok(pid) = digits.parse::<u32>() else {
+            continue;
+        };
+        if !pid_alive(pid) && e.path().is_dir() {
+            let _ = std::fs::remove_dir_all(e.path());
         }
     }
 }
