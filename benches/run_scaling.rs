@@ -55,10 +55,14 @@ fn main() {
     if let Some(pos) = args.iter().position(|a| a == "--run-child") {
         let (dir, out) = (Path::new(&args[pos + 1]), Path::new(&args[pos + 2]));
         let t = Instant::now();
-        let s = run_session(dir, out, &Config::default(), RunOptions::default(), &|_| {})
-            .expect("run");
+        let s =
+            run_session(dir, out, &Config::default(), RunOptions::default(), &|_| {}).expect("run");
         let secs = t.elapsed().as_secs_f64();
-        println!("{secs:.2} {:.1} {}", peak_rss_mb(), s.report.plan.sites.len());
+        println!(
+            "{secs:.2} {:.1} {}",
+            peak_rss_mb(),
+            s.report.plan.sites.len()
+        );
         return;
     }
     if args.iter().any(|a| a == "--list") {

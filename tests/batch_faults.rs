@@ -84,7 +84,11 @@ fn a_killed_run_leaves_no_output_folder_and_its_leftover_is_cleared() {
     // A leftover of a dead process (as a kill while writing would leave) is
     // removed by the next run of the same target.
     let dead = {
-        let mut c = Command::new(exe()).arg("--version").spawn().unwrap();
+        let mut c = Command::new(exe())
+            .arg("--version")
+            .stdout(std::process::Stdio::null())
+            .spawn()
+            .unwrap();
         let pid = c.id();
         c.wait().unwrap();
         pid
@@ -113,7 +117,10 @@ fn an_unwritable_output_is_reported_cleanly() {
     let o = run(common::base_session(), &out, &cfg, None);
     let stderr = String::from_utf8_lossy(&o.stderr);
     assert_eq!(o.status.code(), Some(1), "{stderr}");
-    assert!(stderr.starts_with("error: ") && stderr.contains("a-file"), "{stderr}");
+    assert!(
+        stderr.starts_with("error: ") && stderr.contains("a-file"),
+        "{stderr}"
+    );
     assert!(!stderr.contains("panicked"), "{stderr}");
 }
 
@@ -160,7 +167,10 @@ fn degenerate_data_give_flags_or_clear_errors_and_never_nan() {
         return;
     }
     let text = std::fs::read_to_string(out.join("sites.json")).unwrap();
-    assert!(!text.contains("NaN") && !text.contains("null"), "non-finite values in sites.json");
+    assert!(
+        !text.contains("NaN") && !text.contains("null"),
+        "non-finite values in sites.json"
+    );
     let v: serde_json::Value = serde_json::from_str(&text).unwrap();
     let flags = v["flags"].as_array().unwrap();
     let says = |what: &str, at: &str| {
@@ -168,8 +178,14 @@ fn degenerate_data_give_flags_or_clear_errors_and_never_nan() {
             .iter()
             .any(|f| f["what"] == what && f["where"].as_str().unwrap_or("").contains(at))
     };
-    assert!(says("no-site", "wrist"), "the still DoF is flagged: {flags:#?}");
-    assert!(says("bad-signal", "S2"), "the all-zero site is flagged: {flags:#?}");
+    assert!(
+        says("no-site", "wrist"),
+        "the still DoF is flagged: {flags:#?}"
+    );
+    assert!(
+        says("bad-signal", "S2"),
+        "the all-zero site is flagged: {flags:#?}"
+    );
     for f in ["aligned.csv", "sites.csv"] {
         let t = std::fs::read_to_string(out.join(f)).unwrap();
         assert!(!t.to_lowercase().contains("nan"), "NaN in {f}");

@@ -14,7 +14,11 @@ fn exe() -> &'static str {
 /// with a non-number in emg.csv (`clinic-b/P3`), plus a fast configuration.
 fn batch_folder(tmp: &Path) -> (PathBuf, PathBuf) {
     let input = tmp.join("in");
-    for (rel, broken) in [("clinic-a/P1", false), ("clinic-b/P2", false), ("clinic-b/P3", true)] {
+    for (rel, broken) in [
+        ("clinic-a/P1", false),
+        ("clinic-b/P2", false),
+        ("clinic-b/P3", true),
+    ] {
         let dst = input.join(rel);
         std::fs::create_dir_all(&dst).unwrap();
         for e in std::fs::read_dir(common::base_session()).unwrap() {
@@ -67,9 +71,17 @@ fn batch_runs_good_sessions_reports_the_bad_one_and_skips_current_outputs() {
 
     let o = batch(&input, &out, &cfg, &[]);
     let stderr = String::from_utf8_lossy(&o.stderr);
-    assert_eq!(o.status.code(), Some(1), "a failed session makes the exit status 1: {stderr}");
+    assert_eq!(
+        o.status.code(),
+        Some(1),
+        "a failed session makes the exit status 1: {stderr}"
+    );
     // one progress line per finished session
-    assert_eq!(stderr.lines().filter(|l| l.starts_with('[')).count(), 3, "{stderr}");
+    assert_eq!(
+        stderr.lines().filter(|l| l.starts_with('[')).count(),
+        3,
+        "{stderr}"
+    );
     let rows = summary(&out);
     assert_eq!(
         status_of(&rows),
@@ -85,22 +97,35 @@ fn batch_runs_good_sessions_reports_the_bad_one_and_skips_current_outputs() {
         "{}",
         &rows[2][6]
     );
-    assert!(!out.join("clinic-b/P3").exists(), "no output for a failed session");
+    assert!(
+        !out.join("clinic-b/P3").exists(),
+        "no output for a failed session"
+    );
     for (i, rel) in ["clinic-a/P1", "clinic-b/P2"].iter().enumerate() {
         let d = out.join(rel);
-        for f in ["sites.json", "sites.csv", "aligned.csv", "sheet.pdf", "sheet.html", "run.json"] {
+        for f in [
+            "sites.json",
+            "sites.csv",
+            "aligned.csv",
+            "sheet.pdf",
+            "sheet.html",
+            "run.json",
+        ] {
             assert!(d.join(f).is_file(), "{rel}/{f} missing");
         }
         assert_eq!(&rows[i][1], "TEST-01");
         let planned: Vec<&str> = rows[i][3].split(' ').collect();
-        assert!(!planned.is_empty() && planned.len() <= 4, "{:?}", &rows[i][3]);
+        assert!(
+            !planned.is_empty() && planned.len() <= 4,
+            "{:?}",
+            &rows[i][3]
+        );
         // every planned site has a confidence entry
         for p in &planned {
             assert!(rows[i][4].contains(p), "{p} not in {}", &rows[i][4]);
         }
         let json: serde_json::Value =
-            serde_json::from_str(&std::fs::read_to_string(d.join("sites.json")).unwrap())
-                .unwrap();
+            serde_json::from_str(&std::fs::read_to_string(d.join("sites.json")).unwrap()).unwrap();
         assert_eq!(
             rows[i][5].parse::<usize>().unwrap(),
             json["flags"].as_array().unwrap().len()
@@ -108,7 +133,10 @@ fn batch_runs_good_sessions_reports_the_bad_one_and_skips_current_outputs() {
     }
     let html = std::fs::read_to_string(out.join("batch-summary.html")).unwrap();
     assert!(html.contains("clinic-b/P3") && html.contains("oops"));
-    assert!(!html.contains("http") && !html.contains("<script"), "self-contained");
+    assert!(
+        !html.contains("http") && !html.contains("<script"),
+        "self-contained"
+    );
     let first = std::fs::read(out.join("clinic-a/P1/sites.json")).unwrap();
     let first_rows = rows.clone();
 
@@ -116,7 +144,10 @@ fn batch_runs_good_sessions_reports_the_bad_one_and_skips_current_outputs() {
     let o = batch(&input, &out, &cfg, &["--quiet"]);
     assert_eq!(o.status.code(), Some(1));
     let stderr = String::from_utf8_lossy(&o.stderr);
-    assert!(!stderr.lines().any(|l| l.starts_with('[')), "--quiet: {stderr}");
+    assert!(
+        !stderr.lines().any(|l| l.starts_with('[')),
+        "--quiet: {stderr}"
+    );
     let rows = summary(&out);
     assert_eq!(&rows[0][2], "skipped-current");
     assert_eq!(&rows[1][2], "skipped-current");
@@ -144,7 +175,10 @@ fn batch_runs_good_sessions_reports_the_bad_one_and_skips_current_outputs() {
     let rows = summary(&out);
     assert_eq!(&rows[0][2], "done");
     assert_eq!(&rows[1][2], "done");
-    assert_eq!(std::fs::read(out.join("clinic-a/P1/sites.json")).unwrap(), first);
+    assert_eq!(
+        std::fs::read(out.join("clinic-a/P1/sites.json")).unwrap(),
+        first
+    );
 }
 
 #[test]
@@ -165,7 +199,9 @@ fn a_changed_configuration_makes_outputs_stale() {
     assert!(batch(&input, &out, &cfg, &["--quiet"]).status.success());
     assert_eq!(&summary(&out)[0][2], "skipped-current");
     // a different budget is a different effective configuration
-    assert!(batch(&input, &out, &cfg, &["--quiet", "--budget", "3"]).status.success());
+    assert!(batch(&input, &out, &cfg, &["--quiet", "--budget", "3"])
+        .status
+        .success());
     assert_eq!(&summary(&out)[0][2], "done");
     // a `run` output with the same settings counts as current too
     let single = tmp.path().join("single");

@@ -148,9 +148,15 @@ pub fn default_jobs() -> usize {
 
 /// Whether the output in `out` is complete and matches `now`.
 pub fn is_current(out: &Path, now: &Stamp) -> bool {
-    let complete = ["sites.json", "sites.csv", "sheet.pdf", "sheet.html", "aligned.csv"]
-        .iter()
-        .all(|f| out.join(f).is_file());
+    let complete = [
+        "sites.json",
+        "sites.csv",
+        "sheet.pdf",
+        "sheet.html",
+        "aligned.csv",
+    ]
+    .iter()
+    .all(|f| out.join(f).is_file());
     complete && Stamp::read(out).as_ref() == Some(now)
 }
 
@@ -194,7 +200,10 @@ fn one(s: &Found, out_root: &Path, cfg: &Config, opts: &BatchOptions) -> Outcome
         Ok(Ok(x)) => x,
         Ok(Err(e)) => (Status::Failed(e.to_string()), None),
         Err(p) => (
-            Status::Failed(format!("internal error (panic): {}", panic_message(p.as_ref()))),
+            Status::Failed(format!(
+                "internal error (panic): {}",
+                panic_message(p.as_ref())
+            )),
             None,
         ),
     };

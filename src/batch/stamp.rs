@@ -149,7 +149,8 @@ impl Stamp {
 
     /// Writes the stamp into `dir`.
     pub fn write(&self, dir: &Path) -> Result<()> {
-        let text = serde_json::to_string_pretty(self).map_err(|e| Error::Analysis(e.to_string()))?;
+        let text =
+            serde_json::to_string_pretty(self).map_err(|e| Error::Analysis(e.to_string()))?;
         crate::output::write_file_atomic(&dir.join(STAMP_FILE), (text + "\n").as_bytes())
     }
 

@@ -3,7 +3,9 @@
 use indicatif::{ProgressBar, ProgressDrawTarget, ProgressStyle};
 use mirrorsite::config::Config;
 use mirrorsite::output::Staging;
-use mirrorsite::pipeline::{analyse, build_report, check_output, run_session, Analysis, Progress, RunOptions};
+use mirrorsite::pipeline::{
+    analyse, build_report, check_output, run_session, Analysis, Progress, RunOptions,
+};
 use mirrorsite::report::{self, PageSize, SitesReport};
 use mirrorsite::select::Step;
 use std::path::{Path, PathBuf};
