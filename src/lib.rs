@@ -29,6 +29,7 @@
 #![allow(clippy::neg_cmp_op_on_partial_ord)]
 
 pub mod align;
+pub mod batch;
 pub mod config;
 pub mod error;
 pub mod output;

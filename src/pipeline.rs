@@ -1,6 +1,7 @@
 //! The whole job on one session: read, condition, align, select per DoF,
-//! plan, and gather the report. The command line's `select` and `run` are
-//! thin shells over [`analyse`] and [`build_report`].
+//! plan, and gather the report. The command line's `select` is a thin shell
+//! over [`analyse`] and [`build_report`]; `run` and `batch` call
+//! [`run_session`], which also writes the output folder.
 
 use crate::align::{self, Aligned, Envelopes};
 use crate::config::Config;
@@ -10,6 +11,7 @@ use crate::select::{select_dof, DofData, DofSelection, Step};
 use crate::session::{Block, BlockSource, Session};
 use crate::signal::{self, Conditioned, Verdict};
 use crate::Result;
+use std::path::{Path, PathBuf};
 
 /// What a long step reports, for progress display.
 #[derive(Debug, Clone, PartialEq)]
@@ -306,4 +308,66 @@ fn finite_or_zero(x: f64) -> f64 {
     } else {
         0.0
     }
+}
+
+/// How [`run_session`] writes its output folder.
+#[derive(Debug, Clone, Copy, Default)]
+pub struct RunOptions {
+    /// Paper size of `sheet.pdf`.
+    pub paper: crate::report::PageSize,
+    /// Replace an existing output folder.
+    pub force: bool,
+}
+
+/// What [`run_session`] made.
+pub struct RunSummary {
+    /// The content of `sites.json`.
+    pub report: SitesReport,
+    /// The output folder.
+    pub out: PathBuf,
+    /// The stamp written as `run.json`.
+    pub stamp: crate::batch::Stamp,
+}
+
+/// Refuses an output folder inside the session folder, and an existing one
+/// unless `force`.
+pub fn check_output(session_dir: &Path, out: &Path, force: bool) -> Result<()> {
+    crate::output::ensure_outside(out, session_dir)?;
+    if out.exists() && !force {
+        return Err(crate::Error::Argument(format!(
+            "{} already exists; choose a new output folder or pass --force to replace it",
+            out.display()
+        )));
+    }
+    Ok(())
+}
+
+/// The whole job on one session folder, written into `out`: `sites.json`,
+/// `sites.csv`, the sheet, figures, `aligned.csv`, `alignment.json` and the
+/// stamp `run.json` ([`crate::batch::Stamp`]). The folder is written through
+/// [`crate::output::Staging`], so it appears complete or not at all.
+pub fn run_session(
+    session_dir: &Path,
+    out: &Path,
+    cfg: &Config,
+    opts: RunOptions,
+    progress: &(dyn Fn(Progress) + Sync),
+) -> Result<RunSummary> {
+    check_output(session_dir, out, opts.force)?;
+    // Staged first, so that an unwritable output fails before the analysis.
+    let stage = crate::output::Staging::new(out, opts.force)?;
+    // Hashed before reading: a file changed in between makes the stamp stale,
+    // never wrongly current.
+    let stamp = crate::batch::Stamp::compute(session_dir, cfg, opts.paper)?;
+    let session = crate::session::read(session_dir)?;
+    let a = analyse(session, cfg, progress)?;
+    progress(Progress::Phase("planning".into()));
+    let (plan, plan_flags) = a.plan(cfg)?;
+    let report = build_report(&a, cfg, plan, plan_flags);
+    progress(Progress::Phase("writing the report".into()));
+    crate::report::write_all(&report, stage.path(), opts.paper)?;
+    crate::align::output::write_all(stage.path(), &a.aligned, &cfg.align)?;
+    stamp.write(stage.path())?;
+    let out = stage.commit()?;
+    Ok(RunSummary { report, out, stamp })
 }

@@ -5,6 +5,7 @@ use clap::{Parser, Subcommand};
 use std::process::ExitCode;
 
 mod align;
+mod batch;
 mod config;
 mod inspect;
 mod protocol;
@@ -26,6 +27,8 @@ pub enum Command {
     /// The whole job: check, condition, align, select per DoF, plan, and write
     /// sites.json, sites.csv, aligned.csv, the sheet (PDF, HTML) and figures.
     Run(run::Args),
+    /// Run every session folder below a folder, in parallel, with a summary table.
+    Batch(batch::Args),
     /// Select sites per DoF and write sites.json and sites.csv (no plan or sheet).
     Select(run::Args),
     /// Make a synthetic session with known truth from a scenario file.
@@ -56,6 +59,7 @@ pub fn print_out(text: &str) -> mirrorsite::Result<()> {
 pub fn run(cli: Cli) -> mirrorsite::Result<ExitCode> {
     match cli.command {
         Command::Run(a) => run::run(a),
+        Command::Batch(a) => batch::run(a),
         Command::Select(a) => run::select(a),
         Command::Simulate(a) => simulate::run(a),
         Command::Inspect(a) => inspect::run(a),

@@ -3,7 +3,9 @@
 use indicatif::{ProgressBar, ProgressDrawTarget, ProgressStyle};
 use mirrorsite::config::Config;
 use mirrorsite::output::Staging;
-use mirrorsite::pipeline::{analyse, build_report, Analysis, Progress};
+use mirrorsite::pipeline::{
+    analyse, build_report, check_output, run_session, Analysis, Progress, RunOptions,
+};
 use mirrorsite::report::{self, PageSize, SitesReport};
 use mirrorsite::select::Step;
 use std::path::{Path, PathBuf};
@@ -37,7 +39,8 @@ pub struct Args {
     pub quiet: bool,
 }
 
-fn load_config(args: &Args) -> mirrorsite::Result<Config> {
+/// The configuration file (or the defaults) with the command line's overrides.
+pub fn load_config(args: &Args) -> mirrorsite::Result<Config> {
     let mut cfg = match &args.config {
         Some(p) => Config::load(p)?,
         None => Config::default(),
@@ -54,7 +57,9 @@ fn load_config(args: &Args) -> mirrorsite::Result<Config> {
 }
 
 fn progress_bar(quiet: bool, cfg: &Config, n_dofs: usize) -> ProgressBar {
-    let per_dof = cfg.select.stages + cfg.select.resamples + 1;
+    // conditioning, aligning; per DoF its phase, stages, resamples, comparison;
+    // planning, writing
+    let per_dof = 1 + cfg.select.stages + cfg.select.resamples + 1;
     let total = 2 + n_dofs * per_dof + 2;
     let pb = if quiet {
         ProgressBar::hidden()
@@ -69,17 +74,8 @@ fn progress_bar(quiet: bool, cfg: &Config, n_dofs: usize) -> ProgressBar {
     pb
 }
 
-fn analysis(args: &Args, cfg: &Config) -> mirrorsite::Result<(Analysis, ProgressBar)> {
-    let session = mirrorsite::session::read(&args.session)?;
-    mirrorsite::output::ensure_outside(&args.out, &args.session)?;
-    if args.out.exists() && !args.force {
-        return Err(mirrorsite::Error::Argument(format!(
-            "{} already exists; choose a new output folder or pass --force to replace it",
-            args.out.display()
-        )));
-    }
-    let pb = progress_bar(args.quiet, cfg, session.manifest.dofs.len());
-    let tick = |p: Progress| match p {
+fn ticker(pb: &ProgressBar) -> impl Fn(Progress) + Sync + '_ {
+    move |p: Progress| match p {
         Progress::Phase(m) => {
             pb.set_message(m);
             pb.inc(1);
@@ -93,26 +89,33 @@ fn analysis(args: &Args, cfg: &Config) -> mirrorsite::Result<(Analysis, Progress
             pb.set_message(what);
             pb.inc(1);
         }
-    };
-    let a = analyse(session, cfg, &tick)?;
+    }
+}
+
+fn analysis(args: &Args, cfg: &Config) -> mirrorsite::Result<(Analysis, ProgressBar)> {
+    let session = mirrorsite::session::read(&args.session)?;
+    check_output(&args.session, &args.out, args.force)?;
+    let pb = progress_bar(args.quiet, cfg, session.manifest.dofs.len());
+    let a = analyse(session, cfg, &ticker(&pb))?;
     Ok((a, pb))
 }
 
 /// `mirrorsite run`: everything, into a new output folder.
 pub fn run(args: Args) -> mirrorsite::Result<ExitCode> {
     let cfg = load_config(&args)?;
-    let (a, pb) = analysis(&args, &cfg)?;
-    pb.set_message("planning");
-    let (plan, plan_flags) = a.plan(&cfg)?;
-    let rep = build_report(&a, &cfg, plan, plan_flags);
-    pb.set_message("writing the report");
-    let stage = Staging::new(&args.out, args.force)?;
-    let info = report::write_all(&rep, stage.path(), args.paper)?;
-    mirrorsite::align::output::write_all(stage.path(), &a.aligned, &cfg.align)?;
-    let target = stage.commit()?;
+    check_output(&args.session, &args.out, args.force)?;
+    // The manifest alone gives the bar its length; a bad one is reported by
+    // the run itself.
+    let n_dofs = mirrorsite::session::read_manifest(&args.session).map_or(0, |m| m.dofs.len());
+    let pb = progress_bar(args.quiet, &cfg, n_dofs);
+    let opts = RunOptions {
+        paper: args.paper,
+        force: args.force,
+    };
+    let sum = run_session(&args.session, &args.out, &cfg, opts, &ticker(&pb));
     pb.finish_and_clear();
-    let _ = info;
-    super::print_out(&summary(&rep, &target, true))?;
+    let sum = sum?;
+    super::print_out(&summary(&sum.report, &sum.out, true))?;
     Ok(ExitCode::SUCCESS)
 }
 
