@@ -39,8 +39,7 @@ pub struct Args {
     pub quiet: bool,
 }
 
-/// The configuration file (or the defaults) with the command line's overrides.
-pub fn load_config(args: &Args) -> mirrorsite::Result<Config> {
+fn load_config(args: &Args) -> mirrorsite::Result<Config> {
     let mut cfg = match &args.config {
         Some(p) => Config::load(p)?,
         None => Config::default(),
