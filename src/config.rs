@@ -11,6 +11,8 @@
 
 use crate::align::AlignConfig;
 use crate::error::{Error, InputError, InputErrorKind, Result};
+use crate::plan::PlanConfig;
+use crate::select::SelectConfig;
 use crate::signal::SignalConfig;
 use serde::{Deserialize, Serialize};
 use std::path::Path;
@@ -34,6 +36,10 @@ pub struct Config {
     pub signal: SignalConfig,
     /// Alignment of the intact side onto the EMG clock.
     pub align: AlignConfig,
+    /// Per-DoF selection.
+    pub select: SelectConfig,
+    /// The site plan.
+    pub plan: PlanConfig,
 }
 
 impl Config {
@@ -65,7 +71,13 @@ impl Config {
             .map_err(|e| (format!("{}.{}", SignalConfig::NAME, e.key), e.message))?;
         self.align
             .check()
-            .map_err(|(k, m)| (format!("{}.{k}", AlignConfig::NAME), m))
+            .map_err(|(k, m)| (format!("{}.{k}", AlignConfig::NAME), m))?;
+        self.select
+            .check()
+            .map_err(|(k, m)| (format!("{}.{k}", SelectConfig::NAME), m))?;
+        self.plan
+            .check()
+            .map_err(|(k, m)| (format!("{}.{k}", PlanConfig::NAME), m))
     }
 
     /// The default configuration as commented TOML: every key with its
@@ -78,6 +90,8 @@ impl Config {
         );
         render_section::<SignalConfig>(&mut out);
         render_section::<AlignConfig>(&mut out);
+        render_section::<SelectConfig>(&mut out);
+        render_section::<PlanConfig>(&mut out);
         out
     }
 }

@@ -77,7 +77,18 @@ impl fmt::Display for InputError {
         if let Some(field) = &self.field {
             write!(f, ", field `{field}`")?;
         }
-        write!(f, ": {}", self.message)
+        // One error, one line: parsers' messages that span lines (e.g.
+        // "invalid array\nexpected `]`") are joined with "; ".
+        let mut parts = self
+            .message
+            .lines()
+            .map(str::trim)
+            .filter(|l| !l.is_empty());
+        write!(f, ": {}", parts.next().unwrap_or(""))?;
+        for p in parts {
+            write!(f, "; {p}")?;
+        }
+        Ok(())
     }
 }
 

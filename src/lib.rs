@@ -24,13 +24,20 @@
 //! modules.
 
 #![warn(missing_docs)]
+// `!(x > 0.0)` is used on purpose throughout: unlike `x <= 0.0` it also
+// rejects NaN, which user data and degenerate fits can produce.
+#![allow(clippy::neg_cmp_op_on_partial_ord)]
 
 pub mod align;
+pub mod batch;
 pub mod config;
 pub mod error;
 pub mod output;
+pub mod pipeline;
+pub mod plan;
 pub mod protocol;
 pub mod report;
+pub mod select;
 pub mod session;
 pub mod signal;
 pub mod simulate;

@@ -30,6 +30,7 @@ pub fn run(args: Args) -> mirrorsite::Result<ExitCode> {
         None => Config::default(),
     };
     let s = mirrorsite::session::read(&args.session)?;
+    mirrorsite::output::ensure_outside(&args.out, &args.session)?;
     let (blocks, _source) = mirrorsite::protocol::session_blocks(&s)?;
     let cond = signal::condition(&s.emg, s.sites(), &blocks, &cfg.signal)?;
     let env = Envelopes::from(&cond);

@@ -5,9 +5,11 @@ use clap::{Parser, Subcommand};
 use std::process::ExitCode;
 
 mod align;
+mod batch;
 mod config;
 mod inspect;
 mod protocol;
+mod run;
 mod simulate;
 
 /// Electrode-site selection for myoelectric hands from mirrored bilateral calibration sessions.
@@ -22,6 +24,13 @@ pub struct Cli {
 /// The subcommands.
 #[derive(Debug, Subcommand)]
 pub enum Command {
+    /// The whole job: check, condition, align, select per DoF, plan, and write
+    /// sites.json, sites.csv, aligned.csv, the sheet (PDF, HTML) and figures.
+    Run(run::Args),
+    /// Run every session folder below a folder, in parallel, with a summary table.
+    Batch(batch::Args),
+    /// Select sites per DoF and write sites.json and sites.csv (no plan or sheet).
+    Select(run::Args),
     /// Make a synthetic session with known truth from a scenario file.
     Simulate(simulate::Args),
     /// Read and check a session folder and summarise it.
@@ -49,6 +58,9 @@ pub fn print_out(text: &str) -> mirrorsite::Result<()> {
 /// Runs one command.
 pub fn run(cli: Cli) -> mirrorsite::Result<ExitCode> {
     match cli.command {
+        Command::Run(a) => run::run(a),
+        Command::Batch(a) => batch::run(a),
+        Command::Select(a) => run::select(a),
         Command::Simulate(a) => simulate::run(a),
         Command::Inspect(a) => inspect::run(a),
         Command::Config(a) => config::run(a),

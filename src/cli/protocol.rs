@@ -3,7 +3,6 @@
 use mirrorsite::protocol::play::{self, terminal, EventFile, EventLog, PlayOptions};
 use mirrorsite::protocol::{self, Protocol, SHIPPED};
 use mirrorsite::{Error, InputError, InputErrorKind};
-use std::io::Write;
 use std::path::{Path, PathBuf};
 use std::process::ExitCode;
 
@@ -174,15 +173,9 @@ fn cues(file: &str, start: f64, out: &Path, force: bool) -> mirrorsite::Result<E
     }
     refuse_existing(out, force)?;
     // Write beside the target, then rename, so a failure leaves no half file.
-    let mut tmp_name = out.file_name().unwrap_or_default().to_os_string();
-    tmp_name.push(".partial");
-    let tmp = out.with_file_name(tmp_name);
-    let f = std::fs::File::create(&tmp).map_err(|e| Error::io(&tmp, e))?;
-    let mut w = std::io::BufWriter::new(f);
-    protocol::write_cues_csv(&cues, &mut w).map_err(|e| Error::io(&tmp, e))?;
-    w.flush().map_err(|e| Error::io(&tmp, e))?;
-    drop(w);
-    std::fs::rename(&tmp, out).map_err(|e| Error::io(out, e))?;
+    let mut bytes = Vec::new();
+    protocol::write_cues_csv(&cues, &mut bytes).map_err(|e| Error::io(out, e))?;
+    mirrorsite::output::write_file_atomic(out, &bytes)?;
     eprintln!(
         "{} cues of {} ({}) written to {}",
         cues.len(),

@@ -180,7 +180,7 @@ fn key_on_line(text: &str, lines: &Lines, line: usize) -> Option<String> {
     let l = &rest[..rest.find('\n').unwrap_or(rest.len())];
     let (key, _) = l.split_once('=')?;
     let key = key.trim();
-    is_id(key).then(|| key.to_string())
+    (is_id(key) && key.chars().any(|c| c.is_ascii_alphanumeric())).then(|| key.to_string())
 }
 
 /// The first backtick-quoted word after `lead` in `msg`.

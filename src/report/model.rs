@@ -146,6 +146,10 @@ pub struct DofResult {
     pub stages: Vec<Stage>,
     /// Effect surfaces of the selected sites.
     pub effects: Vec<Effect>,
+    /// Number of resampled refits behind each site's `frequency`, when known
+    /// (the sheet then says "chosen in k of N resamples").
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub resamples: Option<usize>,
 }
 
 /// One planned site.

@@ -73,8 +73,17 @@ pub fn line_of(text: &str, offset: usize) -> usize {
 }
 
 /// Extracts the key named in a toml/serde message such as "missing field `rate_hz`".
+/// Other backticked words ("expected `\"`, `'`") are not keys.
 fn key_in_message(msg: &str) -> Option<String> {
-    let start = msg.find('`')? + 1;
+    let lead = [
+        "missing field",
+        "unknown field",
+        "duplicate key",
+        "duplicate field",
+    ]
+    .into_iter()
+    .find(|l| msg.starts_with(l))?;
+    let start = lead.len() + msg[lead.len()..].find('`')? + 1;
     let len = msg[start..].find('`')?;
     Some(msg[start..start + len].to_string())
 }

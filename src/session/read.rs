@@ -312,6 +312,18 @@ pub fn read_events(path: &Path, m: &Manifest, emg: &Recording) -> Result<Vec<Blo
             InputError::new(path, K::Malformed, format!("unreadable row: {e}")).at_line(line)
         })?;
         let line = rec.position().map_or(0, |p| p.line() as usize);
+        if let Some(j) = rec.iter().position(|f| f.contains('\n')) {
+            let mut e = InputError::new(
+                path,
+                K::Malformed,
+                "a quote opened in this row is not closed before the line ends; quotes must pair up within a row",
+            )
+            .at_line(line);
+            if let Some(h) = header.get(j) {
+                e = e.field(h);
+            }
+            return Err(e);
+        }
         if rec.iter().all(str::is_empty) {
             continue;
         }

@@ -41,7 +41,7 @@ pub fn open_text(path: &Path) -> Result<Box<dyn BufRead>, InputError> {
         return Err(InputError::new(
             path,
             K::Unreadable,
-            "is a folder; expected a CSV file",
+            "is a folder; expected a file",
         ));
     }
     let is_gz = path

@@ -411,6 +411,12 @@ fn default_relax() -> f64 {
     2.5
 }
 
+/// Longest simulated session, s (4 h: far beyond a calibration session, and
+/// about what fits in memory at 2 kHz with a few dozen sites).
+pub const MAX_DURATION_S: f64 = 4.0 * 3600.0;
+/// Most sites on one ring.
+pub const MAX_RING_SITES: usize = 256;
+
 impl Scenario {
     /// Reads and checks a scenario file.
     pub fn from_file(path: &Path) -> crate::Result<Scenario> {
@@ -525,6 +531,37 @@ impl Scenario {
             if !(b.period_s > 0.5) {
                 return Err(bad("block.period_s", "must exceed 0.5 s".into()));
             }
+        }
+        for (field, v) in [
+            ("lead_in_s", self.lead_in_s),
+            ("lead_out_s", self.lead_out_s),
+        ] {
+            if !(v >= 0.0 && v.is_finite()) {
+                return Err(bad(
+                    field,
+                    format!("must be a number of seconds >= 0, not {v}"),
+                ));
+            }
+        }
+        let total = self.total_duration();
+        if !(total <= MAX_DURATION_S) {
+            return Err(bad(
+                "block.duration_s",
+                format!("the session would last {total} s; at most {MAX_DURATION_S} s"),
+            ));
+        }
+        if let Some(r) = self
+            .ring
+            .iter()
+            .find(|r| !(1..=MAX_RING_SITES).contains(&r.count))
+        {
+            return Err(bad(
+                "ring.count",
+                format!(
+                    "ring `{}` has {} sites; expected 1 to {MAX_RING_SITES}",
+                    r.prefix, r.count
+                ),
+            ));
         }
         let ids = self.site_ids();
         if let Some(f) = &self.fault {

@@ -83,3 +83,95 @@ pub fn set_field(path: &Path, line: usize, col: usize, value: &str) {
     f[col] = value;
     set_line(path, line, &f.join(","));
 }
+
+/// A snapshot of a folder tree: every entry's relative path with its type,
+/// permission bits, link target (for links, which are not followed) and a
+/// content hash (for files; 0 when unreadable). Two equal snapshots mean
+/// nothing was added, removed, renamed, re-linked, re-permissioned or changed.
+pub fn snapshot_dir(dir: &Path) -> BTreeMap<String, String> {
+    fn walk(base: &Path, dir: &Path, out: &mut BTreeMap<String, String>) {
+        let mut entries: Vec<_> = std::fs::read_dir(dir)
+            .unwrap()
+            .map(|e| e.unwrap().path())
+            .collect();
+        entries.sort();
+        for p in entries {
+            let rel = p.strip_prefix(base).unwrap().to_string_lossy().into_owned();
+            let meta = std::fs::symlink_metadata(&p).unwrap();
+            let mode = perm_bits(&meta);
+            let what = if meta.file_type().is_symlink() {
+                format!(
+                    "link {mode:o} -> {}",
+                    std::fs::read_link(&p).unwrap().display()
+                )
+            } else if meta.is_dir() {
+                walk(base, &p, out);
+                format!("dir {mode:o}")
+            } else {
+                let h = std::fs::read(&p).map_or(0, |bytes| {
+                    bytes.iter().fold(0xcbf2_9ce4_8422_2325u64, |h, b| {
+                        (h ^ *b as u64).wrapping_mul(0x0000_0100_0000_01b3)
+                    })
+                });
+                format!("file {mode:o} {} {h:016x}", meta.len())
+            };
+            out.insert(rel, what);
+        }
+    }
+    let mut out = BTreeMap::new();
+    walk(dir, dir, &mut out);
+    out
+}
+
+#[cfg(unix)]
+fn perm_bits(meta: &std::fs::Metadata) -> u32 {
+    use std::os::unix::fs::PermissionsExt;
+    meta.permissions().mode() & 0o7777
+}
+
+#[cfg(not(unix))]
+fn perm_bits(meta: &std::fs::Metadata) -> u32 {
+    u32::from(meta.permissions().readonly())
+}
+
+/// Whether this process runs as root (effective uid 0), so that file
+/// permissions do not stop it.
+pub fn is_root() -> bool {
+    std::fs::read_to_string("/proc/self/status")
+        .ok()
+        .and_then(|s| {
+            s.lines()
+                .find(|l| l.starts_with("Uid:"))
+                .and_then(|l| l.split_whitespace().nth(2).map(|u| u == "0"))
+        })
+        .unwrap_or(false)
+}
+
+/// A command that runs `program` without the power to bypass file
+/// permissions: the program itself when not root; as root, the program under
+/// `setpriv` as the unprivileged user 65534 (which must be able to run it).
+/// `None` when neither is possible; the caller then skips its permission check.
+pub fn unprivileged(program: &Path) -> Option<std::process::Command> {
+    if !is_root() {
+        return Some(std::process::Command::new(program));
+    }
+    let make = || {
+        let mut c = std::process::Command::new("setpriv");
+        c.args(["--reuid=65534", "--regid=65534", "--clear-groups"])
+            .arg(program);
+        c
+    };
+    let works = make()
+        .arg("--version")
+        .output()
+        .is_ok_and(|o| o.status.success());
+    works.then(make)
+}
+
+/// Sets a folder's mode to 755 so that an unprivileged run can enter it
+/// (temporary folders are created 700).
+#[cfg(unix)]
+pub fn open_to_all(dir: &Path) {
+    use std::os::unix::fs::PermissionsExt;
+    std::fs::set_permissions(dir, std::fs::Permissions::from_mode(0o755)).unwrap();
+}
