@@ -50,6 +50,11 @@ impl Config {
         Config::from_toml(&text, path)
     }
 
+    /// Reads `path` when given, else the defaults.
+    pub fn load_or_default(path: Option<&Path>) -> Result<Config> {
+        path.map_or_else(|| Ok(Config::default()), Config::load)
+    }
+
     /// Parses and checks configuration text; `file` names it in errors.
     pub fn from_toml(text: &str, file: &Path) -> Result<Config> {
         let cfg: Config = toml::from_str(text).map_err(|e| toml_error(&e, text, file))?;

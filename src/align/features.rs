@@ -16,25 +16,7 @@
 
 #![allow(clippy::needless_range_loop)] // index loops mirror the formulas
 
-/// Zero-phase moving average over `w` samples (odd; 1 leaves `x` unchanged).
-pub fn moving_average(x: &[f64], w: usize) -> Vec<f64> {
-    let n = x.len();
-    let h = w / 2;
-    if h == 0 || n == 0 {
-        return x.to_vec();
-    }
-    let mut prefix = vec![0.0; n + 1];
-    for i in 0..n {
-        prefix[i + 1] = prefix[i] + x[i];
-    }
-    (0..n)
-        .map(|i| {
-            let a = i.saturating_sub(h);
-            let b = (i + h + 1).min(n);
-            (prefix[b] - prefix[a]) / (b - a) as f64
-        })
-        .collect()
-}
+pub use crate::signal::envelope::moving_average;
 
 /// Linear interpolation of `y` (sampled at integer positions) at fractional position `u`, clamped.
 pub fn lerp_at(y: &[f64], u: f64) -> f64 {

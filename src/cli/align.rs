@@ -25,10 +25,7 @@ pub struct Args {
 
 /// Runs the command.
 pub fn run(args: Args) -> mirrorsite::Result<ExitCode> {
-    let cfg = match &args.config {
-        Some(p) => Config::load(p)?,
-        None => Config::default(),
-    };
+    let cfg = Config::load_or_default(args.config.as_deref())?;
     let s = mirrorsite::session::read(&args.session)?;
     mirrorsite::output::ensure_outside(&args.out, &args.session)?;
     let (blocks, _source) = mirrorsite::protocol::session_blocks(&s)?;

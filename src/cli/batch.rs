@@ -1,9 +1,7 @@
 //! `mirrorsite batch`: every session folder below a folder, in parallel.
 
 use mirrorsite::batch::{self, BatchOptions, Outcome, Status};
-use mirrorsite::config::Config;
 use mirrorsite::pipeline::RunOptions;
-use mirrorsite::report::PageSize;
 use std::io::Write;
 use std::path::PathBuf;
 use std::process::ExitCode;
@@ -21,40 +19,15 @@ pub struct Args {
     /// Sessions run at the same time (default: half the cores, at least 1).
     #[arg(long, short)]
     pub jobs: Option<usize>,
-    /// Analysis configuration file (defaults for every key it leaves out).
-    #[arg(long)]
-    pub config: Option<PathBuf>,
-    /// Channel budget of the socket (overrides `plan.budget`).
-    #[arg(long)]
-    pub budget: Option<usize>,
-    /// Seed of the resampling (overrides `select.seed`).
-    #[arg(long)]
-    pub seed: Option<u64>,
-    /// Paper size of each sheet.pdf: a4 or letter.
-    #[arg(long, default_value = "a4")]
-    pub paper: PageSize,
+    /// Configuration, budget, seed and paper (for every session).
+    #[command(flatten)]
+    pub analysis: super::AnalysisArgs,
     /// Redo sessions whose outputs are complete and current.
     #[arg(long)]
     pub force: bool,
     /// No line per finished session.
     #[arg(long, short)]
     pub quiet: bool,
-}
-
-fn load_config(args: &Args) -> mirrorsite::Result<Config> {
-    let mut cfg = match &args.config {
-        Some(p) => Config::load(p)?,
-        None => Config::default(),
-    };
-    if let Some(b) = args.budget {
-        cfg.plan.budget = b;
-    }
-    if let Some(s) = args.seed {
-        cfg.select.seed = s;
-    }
-    cfg.validate()
-        .map_err(|(k, m)| mirrorsite::Error::Argument(format!("{k}: {m}")))?;
-    Ok(cfg)
 }
 
 fn line(o: &Outcome, k: usize, n: usize) -> String {
@@ -80,7 +53,7 @@ fn line(o: &Outcome, k: usize, n: usize) -> String {
 
 /// Runs the batch; exit status 1 when any session failed.
 pub fn run(args: Args) -> mirrorsite::Result<ExitCode> {
-    let cfg = load_config(&args)?;
+    let cfg = args.analysis.config()?;
     if !args.folder.is_dir() {
         return Err(mirrorsite::Error::Argument(format!(
             "{} is not a folder",
@@ -104,7 +77,7 @@ pub fn run(args: Args) -> mirrorsite::Result<ExitCode> {
         jobs: args.jobs.unwrap_or_else(batch::default_jobs),
         force: args.force,
         run: RunOptions {
-            paper: args.paper,
+            paper: args.analysis.paper,
             force: true,
         },
     };

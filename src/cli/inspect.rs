@@ -23,10 +23,7 @@ pub struct Args {
 
 /// Runs the command.
 pub fn run(args: Args) -> mirrorsite::Result<ExitCode> {
-    let cfg = match &args.config {
-        Some(p) => Config::load(p)?,
-        None => Config::default(),
-    };
+    let cfg = Config::load_or_default(args.config.as_deref())?;
     let s = session::read(&args.session)?;
     let (blocks, source) = mirrorsite::protocol::session_blocks(&s)?;
     let source = match source {

@@ -43,6 +43,39 @@ pub enum Command {
     Align(align::Args),
 }
 
+/// Analysis options shared by `run`, `select` and `batch`.
+#[derive(Debug, clap::Args)]
+pub struct AnalysisArgs {
+    /// Analysis configuration file (defaults for every key it leaves out).
+    #[arg(long)]
+    pub config: Option<std::path::PathBuf>,
+    /// Channel budget of the socket (overrides `plan.budget`).
+    #[arg(long)]
+    pub budget: Option<usize>,
+    /// Seed of the resampling (overrides `select.seed`).
+    #[arg(long)]
+    pub seed: Option<u64>,
+    /// Paper size of sheet.pdf: a4 or letter.
+    #[arg(long, default_value = "a4")]
+    pub paper: mirrorsite::report::PageSize,
+}
+
+impl AnalysisArgs {
+    /// The configuration file (or the defaults) with the command-line overrides, checked.
+    pub fn config(&self) -> mirrorsite::Result<mirrorsite::config::Config> {
+        let mut cfg = mirrorsite::config::Config::load_or_default(self.config.as_deref())?;
+        if let Some(b) = self.budget {
+            cfg.plan.budget = b;
+        }
+        if let Some(s) = self.seed {
+            cfg.select.seed = s;
+        }
+        cfg.validate()
+            .map_err(|(k, m)| mirrorsite::Error::Argument(format!("{k}: {m}")))?;
+        Ok(cfg)
+    }
+}
+
 /// Writes `text` to stdout; a closed pipe (e.g. `| head`) is not an error.
 pub fn print_out(text: &str) -> mirrorsite::Result<()> {
     use std::io::Write;

@@ -6,7 +6,7 @@ use mirrorsite::output::Staging;
 use mirrorsite::pipeline::{
     analyse, build_report, check_output, run_session, Analysis, Progress, RunOptions,
 };
-use mirrorsite::report::{self, PageSize, SitesReport};
+use mirrorsite::report::{self, SitesReport};
 use mirrorsite::select::Step;
 use std::path::{Path, PathBuf};
 use std::process::ExitCode;
@@ -19,40 +19,15 @@ pub struct Args {
     /// The new output folder.
     #[arg(long)]
     pub out: PathBuf,
-    /// Analysis configuration file (defaults for every key it leaves out).
-    #[arg(long)]
-    pub config: Option<PathBuf>,
-    /// Channel budget of the socket (overrides `plan.budget`).
-    #[arg(long)]
-    pub budget: Option<usize>,
-    /// Seed of the resampling (overrides `select.seed`).
-    #[arg(long)]
-    pub seed: Option<u64>,
-    /// Paper size of sheet.pdf: a4 or letter.
-    #[arg(long, default_value = "a4")]
-    pub paper: PageSize,
+    /// Configuration, budget, seed and paper.
+    #[command(flatten)]
+    pub analysis: super::AnalysisArgs,
     /// Replace the output folder if it exists.
     #[arg(long)]
     pub force: bool,
     /// No progress bar.
     #[arg(long, short)]
     pub quiet: bool,
-}
-
-fn load_config(args: &Args) -> mirrorsite::Result<Config> {
-    let mut cfg = match &args.config {
-        Some(p) => Config::load(p)?,
-        None => Config::default(),
-    };
-    if let Some(b) = args.budget {
-        cfg.plan.budget = b;
-    }
-    if let Some(s) = args.seed {
-        cfg.select.seed = s;
-    }
-    cfg.validate()
-        .map_err(|(k, m)| mirrorsite::Error::Argument(format!("{k}: {m}")))?;
-    Ok(cfg)
 }
 
 fn progress_bar(quiet: bool, cfg: &Config, n_dofs: usize) -> ProgressBar {
@@ -101,14 +76,13 @@ fn analysis(args: &Args, cfg: &Config) -> mirrorsite::Result<(Analysis, Progress
 
 /// `mirrorsite run`: everything, into a new output folder.
 pub fn run(args: Args) -> mirrorsite::Result<ExitCode> {
-    let cfg = load_config(&args)?;
-    check_output(&args.session, &args.out, args.force)?;
+    let cfg = args.analysis.config()?;
     // The manifest alone gives the bar its length; a bad one is reported by
     // the run itself.
     let n_dofs = mirrorsite::session::read_manifest(&args.session).map_or(0, |m| m.dofs.len());
     let pb = progress_bar(args.quiet, &cfg, n_dofs);
     let opts = RunOptions {
-        paper: args.paper,
+        paper: args.analysis.paper,
         force: args.force,
     };
     let sum = run_session(&args.session, &args.out, &cfg, opts, &ticker(&pb));
@@ -120,7 +94,7 @@ pub fn run(args: Args) -> mirrorsite::Result<ExitCode> {
 
 /// `mirrorsite select`: the per-DoF selection, written as sites.json and sites.csv.
 pub fn select(args: Args) -> mirrorsite::Result<ExitCode> {
-    let cfg = load_config(&args)?;
+    let cfg = args.analysis.config()?;
     let (a, pb) = analysis(&args, &cfg)?;
     let plan = mirrorsite::report::Plan {
         budget: cfg.plan.budget,

@@ -29,10 +29,7 @@ pub fn relaxed_fit(
     phi: (f64, f64),
 ) -> Result<(CvFigures, Option<Fit>)> {
     if groups.is_empty() {
-        return Ok((
-            ctx.figures(baseline_only_mse(ctx, &ctx.subset_folds(&[]))?),
-            None,
-        ));
+        return Ok((ctx.figures(baseline_only_mse(ctx)?), None));
     }
     let l = ctx.factor(phi.0, phi.1)?;
     let factors = vec![l; groups.len()];
@@ -42,7 +39,7 @@ pub fn relaxed_fit(
     let w = vec![1.0; groups.len()];
     let lmax = problem.lambda_max(&w)?;
     if lmax <= 0.0 {
-        return Ok((ctx.figures(baseline_only_mse(ctx, &sub)?), None));
+        return Ok((ctx.figures(baseline_only_mse(ctx)?), None));
     }
     let grid = lambda_grid(lmax, ctx.cfg.lambda_ratio, ctx.cfg.n_lambda);
     let cv = cross_validate(&sub, ctx.q, &factors, &w, &grid, &ctx.opts)?;
@@ -59,21 +56,19 @@ pub fn relaxed_fit(
 }
 
 /// Mean held-out squared error of the baseline a(z) alone (the first `q` columns).
-fn baseline_only_mse(ctx: &Context, sub: &FoldGrams) -> Result<f64> {
+fn baseline_only_mse(ctx: &Context) -> Result<f64> {
+    let sub = ctx.subset_folds(&[]);
     let mut total = 0.0;
     for (train, held) in sub.train.iter().zip(&sub.held) {
-        let t = super::context::subset_gram(train, &(0..ctx.q).collect::<Vec<_>>());
-        let h = super::context::subset_gram(held, &(0..ctx.q).collect::<Vec<_>>());
-        let prof = t.profile(ctx.q)?;
-        let c = prof.full_coef(&[]);
-        total += h.residual_sum_of_squares(&c)? / h.n.max(1) as f64;
+        let c = train.profile(ctx.q)?.full_coef(&[]);
+        total += held.residual_sum_of_squares(&c)? / held.n.max(1) as f64;
     }
     Ok(total / sub.train.len() as f64)
 }
 
 /// The position main effect only: y = a(z) + e, on the same folds.
 pub fn position_baseline(ctx: &Context) -> Result<CvFigures> {
-    Ok(ctx.figures(baseline_only_mse(ctx, &ctx.subset_folds(&[]))?))
+    Ok(ctx.figures(baseline_only_mse(ctx)?))
 }
 
 /// The concurrent linear model y = β₀ + Σ_k β_k x_k(t) + e over the candidate

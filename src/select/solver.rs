@@ -805,6 +805,21 @@ fn norm(v: &[f64]) -> f64 {
     v.iter().map(|x| x * x).sum::<f64>().sqrt()
 }
 
+/// `Q v` on a compact working set (`Q` is `m × m`, column-major).
+fn compact_product(qw: &[f64], v: &[f64]) -> Vec<f64> {
+    let m = v.len();
+    let mut out = vec![0.0; m];
+    matmul(
+        MatMut::from_column_major_slice_mut(&mut out, m, 1),
+        Accum::Replace,
+        MatRef::from_column_major_slice(qw, m, m),
+        MatRef::from_column_major_slice(v, m, 1),
+        1.0,
+        Par::Seq,
+    );
+    out
+}
+
 /// `g = c − Qη` on a compact working set.
 fn compact_gradient(qw: &[f64], cw: &[f64], eta: &[f64]) -> Vec<f64> {
     let m = cw.len();
@@ -1013,15 +1028,7 @@ fn newton_dense(
             for (r, &i) in coords.iter().enumerate() {
                 full[i] = v[r];
             }
-            let mut qf = vec![0.0; m];
-            matmul(
-                MatMut::from_column_major_slice_mut(&mut qf, m, 1),
-                Accum::Replace,
-                MatRef::from_column_major_slice(qw, m, m),
-                MatRef::from_column_major_slice(&full, m, 1),
-                1.0,
-                Par::Seq,
-            );
+            let qf = compact_product(qw, &full);
             for &(s, e, alpha, n) in &blocks {
                 let uv: f64 = (s..e).map(|r| eta[coords[r]] / n * v[r]).sum();
                 for r in s..e {
@@ -1066,15 +1073,7 @@ fn newton_dense(
     if !x.iter().all(|v| v.is_finite()) {
         return None;
     }
-    let mut qx = vec![0.0; m];
-    matmul(
-        MatMut::from_column_major_slice_mut(&mut qx, m, 1),
-        Accum::Replace,
-        MatRef::from_column_major_slice(qw, m, m),
-        MatRef::from_column_major_slice(&x, m, 1),
-        1.0,
-        Par::Seq,
-    );
+    let qx = compact_product(qw, &x);
     let f0 = compact_objective(cw, g, eta, yy, gstart, thr);
     let mut step = 1.0;
     for _ in 0..6 {

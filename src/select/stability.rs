@@ -43,7 +43,7 @@ fn resample_gram(ctx: &Context, seed: u64, r: usize) -> Gram {
             .design
             .gram_of(b * len..((b + 1) * len).min(n), Par::Seq);
         for _ in 0..c {
-            acc = acc.add(&g);
+            acc.accumulate(&g, 1.0);
         }
     }
     acc

@@ -90,10 +90,15 @@ struct PhiResult {
     fits: Vec<Fit>,
 }
 
-fn run_phi(ctx: &Context, groups: &[usize], weights: &[f64], phi: (f64, f64)) -> Result<PhiResult> {
+fn run_phi(
+    ctx: &Context,
+    sub: &FoldGrams,
+    groups: &[usize],
+    weights: &[f64],
+    phi: (f64, f64),
+) -> Result<PhiResult> {
     let l = ctx.factor(phi.0, phi.1)?;
     let factors = vec![l; groups.len()];
-    let sub = ctx.subset_folds(groups);
     let prof = sub.total.profile(ctx.q)?;
     let problem = GroupLasso::new(&prof, &factors)?;
     let lmax = problem.lambda_max(weights)?;
@@ -108,7 +113,7 @@ fn run_phi(ctx: &Context, groups: &[usize], weights: &[f64], phi: (f64, f64)) ->
     let t0 = std::time::Instant::now();
     let (fits, mean, se) = cv_path_early(
         &problem,
-        &sub,
+        sub,
         ctx.q,
         &factors,
         weights,
@@ -278,9 +283,11 @@ pub fn tune(ctx: &Context, groups: &[usize], weights: &[f64]) -> Result<Tuned> {
         .iter()
         .flat_map(|&s| ctx.cfg.phi_z.iter().map(move |&z| (s, z)))
         .collect();
+    // the site subset's fold Grams do not depend on the smoothing: once per call
+    let sub = ctx.subset_folds(groups);
     let results: Vec<Result<PhiResult>> = phis
         .par_iter()
-        .map(|&phi| run_phi(ctx, groups, weights, phi))
+        .map(|&phi| run_phi(ctx, &sub, groups, weights, phi))
         .collect();
     let mut settings = Vec::new();
     let mut fits = Vec::new();

@@ -71,6 +71,27 @@ pub fn linear_envelope(
     Ok(())
 }
 
+/// Zero-phase moving average over `w` samples (odd; 1 leaves `x` unchanged),
+/// by prefix sums; near the ends the window shrinks to the samples present.
+pub fn moving_average(x: &[f64], w: usize) -> Vec<f64> {
+    let n = x.len();
+    let h = w / 2;
+    if h == 0 || n == 0 {
+        return x.to_vec();
+    }
+    let mut prefix = vec![0.0; n + 1];
+    for i in 0..n {
+        prefix[i + 1] = prefix[i] + x[i];
+    }
+    (0..n)
+        .map(|i| {
+            let a = i.saturating_sub(h);
+            let b = (i + h + 1).min(n);
+            (prefix[b] - prefix[a]) / (b - a) as f64
+        })
+        .collect()
+}
+
 /// Root mean square of `x`: `sqrt(Σ x² / n)` (0 for an empty slice).
 pub fn rms(x: &[f64]) -> f64 {
     if x.is_empty() {

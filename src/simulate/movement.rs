@@ -208,23 +208,6 @@ pub fn derivative(x: &[f64], fs: f64) -> Vec<f64> {
         .collect()
 }
 
-/// Zero-phase moving average of width `w` samples (odd).
-fn smooth(x: &[f64], w: usize) -> Vec<f64> {
-    let n = x.len();
-    let h = w / 2;
-    let mut prefix = vec![0.0; n + 1];
-    for i in 0..n {
-        prefix[i + 1] = prefix[i] + x[i];
-    }
-    (0..n)
-        .map(|i| {
-            let a = i.saturating_sub(h);
-            let b = (i + h + 1).min(n);
-            (prefix[b] - prefix[a]) / (b - a) as f64
-        })
-        .collect()
-}
-
 /// Demand on the agonist of `dir` for DoF `di`, before muscle mixing.
 pub fn demand(sc: &Scenario, mv: &Movement, di: usize, dir: Direction) -> Vec<f64> {
     let d = &sc.dof[di];
@@ -257,7 +240,7 @@ pub fn demand(sc: &Scenario, mv: &Movement, di: usize, dir: Direction) -> Vec<f6
         })
         .collect();
     let width = ((SMOOTH_S * fs).round() as usize) | 1;
-    smooth(&raw, width)
+    crate::signal::envelope::moving_average(&raw, width)
 }
 
 /// Activation of every muscle (scenario order), in [0, 1.5].
