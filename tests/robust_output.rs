@@ -126,9 +126,14 @@ fn no_permission_to_write() {
     std::fs::create_dir(&locked).unwrap();
     open_to_all(t.path());
     std::fs::set_permissions(&locked, std::fs::Permissions::from_mode(0o555)).unwrap();
+    // The scenario is copied beside the locked folder: the unprivileged user
+    // may not be able to reach the checkout (e.g. a clone inside a 0700 folder).
+    let readable = t.path().join("scenario.toml");
+    std::fs::copy(scenario(), &readable).unwrap();
+    std::fs::set_permissions(&readable, std::fs::Permissions::from_mode(0o644)).unwrap();
     let out = sim
         .arg("simulate")
-        .arg(scenario())
+        .arg(&readable)
         .arg("--out")
         .arg(locked.join("s"))
         .output()
