@@ -10,7 +10,7 @@
 # nightly toolchain (`rustup toolchain install nightly`). Seeds come from
 # fuzz/seeds/<target>; the growing corpus lives in fuzz/corpus/<target> and
 # crashes in fuzz/artifacts/<target> (both ignored by git). A crash makes the
-# script fail: turn the input into a regression test (tests/robust_regressions.rs,
+# script fail: turn the input into a regression test (tests/suite/robust_regressions.rs,
 # input under tests/fixtures/robust/) before fixing it.
 set -euo pipefail
 cd "$(dirname "$0")/.."

@@ -1,7 +1,7 @@
 //! Validation of protocol files: every error names the file, the line and
 //! the key. Expected lines are found by searching the test text itself.
 
-mod protocol_common;
+use crate::protocol_common;
 
 use mirrorsite::protocol::{self, check_source, parse};
 use mirrorsite::InputErrorKind as K;

@@ -2,7 +2,7 @@
 //! (fixture: tests/fixtures/engine/basis.json, made by make_fixtures.py:
 //! scipy.interpolate.BSpline values, scipy.integrate.quad / dblquad integrals).
 
-mod engine_common;
+use crate::engine_common;
 use engine_common::*;
 use mirrorsite::select::design::lag_taps;
 use mirrorsite::select::{BSplineBasis, SurfaceBasis};

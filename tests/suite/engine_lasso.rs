@@ -5,7 +5,7 @@
 //! Johnstone & Tibshirani (2004, "Least angle regression", Ann Stat 32:407–499,
 //! Fig. 1; see FACTS.md section 7): 3, 9, 4, 7, 2, 10, 5, 8, 6, 1 (1-based).
 
-mod engine_common;
+use crate::engine_common;
 use engine_common::*;
 use faer::Mat;
 use mirrorsite::select::{lambda_grid, Gram, GroupLasso, SolverOptions};

@@ -1,6 +1,6 @@
 //! The `inspect` command on the shipped demo session and on bad input.
 
-mod common;
+use crate::common;
 
 use common::*;
 use std::process::Command;

@@ -3,7 +3,7 @@
 //! `fit_intercept=False`). Objective scaling on both sides:
 //! `(1/2n)‖y − Xb‖² + λ Σ_k w_k ‖b_k‖₂`.
 
-mod engine_common;
+use crate::engine_common;
 use engine_common::*;
 use faer::Mat;
 use mirrorsite::select::{Gram, GroupLasso, SolverOptions};

@@ -1,6 +1,6 @@
 //! The alignment outputs: aligned.csv columns and rows, alignment.json, figures.
 
-mod align_support;
+use crate::align_support;
 
 use align_support::*;
 use mirrorsite::align::{align, output, AlignConfig, Verdict};

@@ -1,6 +1,6 @@
 //! The simulator: known truth that the raw data actually carry.
 
-mod common;
+use crate::common;
 
 use common::*;
 use mirrorsite::session;

@@ -3,7 +3,7 @@
 //! (protocols/README.md): paced cycles are two half-period cues, holds are
 //! reach + hold + relax, a rate of 40 beats per minute is a 3 s cycle.
 
-mod protocol_common;
+use crate::protocol_common;
 
 use mirrorsite::protocol::{parse, write_cues_csv, Pattern, Phase};
 use protocol_common::TINY;

@@ -1,7 +1,7 @@
 //! `mirrorsite run` end to end on a small simulated session: the output
 //! folder's contract, refusal to overwrite, and the session left untouched.
 
-mod common;
+use crate::common;
 
 use common::*;
 use std::process::Command;

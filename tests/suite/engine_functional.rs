@@ -11,7 +11,7 @@
 //! weakly determined; the checks are the objective (1e-7 relative), the
 //! active set (exact) and the KKT conditions, as for any two accurate solvers.
 
-mod engine_common;
+use crate::engine_common;
 use engine_common::*;
 use mirrorsite::select::{
     block_folds, cross_validate, DesignSpec, FoldGrams, FunctionalDesign, GroupLasso, SolverOptions,

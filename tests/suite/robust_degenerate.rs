@@ -7,7 +7,7 @@
 //! The model-side consequences (identical sites are collinear, a still DoF
 //! has nothing to fit) belong to `run`, which does not exist yet.
 
-mod common;
+use crate::common;
 
 use common::*;
 use serde_json::Value;

@@ -2,7 +2,7 @@
 //! give the same bytes, and `inspect --json` gives the same bytes, whatever
 //! the number of worker threads (`RAYON_NUM_THREADS`) and however often run.
 
-mod common;
+use crate::common;
 
 use common::*;
 use std::path::Path;

@@ -1,7 +1,7 @@
 //! Bad input through the binary: `mirrorsite inspect <session>` on a good
 //! session with one defect each.
 //!
-//! The library-level battery (tests/session_errors.rs) checks the kind of
+//! The library-level battery (tests/suite/session_errors.rs) checks the kind of
 //! every error. This one checks what a user sees: exit code 2, exactly one
 //! line on stderr that starts with `error: <file>, line <n>, field `<f>`: `
 //! (line and field where they exist), nothing on stdout, no panic, and the
@@ -14,7 +14,7 @@
 //! runs the binary as an unprivileged user (`setpriv`, when root) and is
 //! skipped, with a note on stderr, only when that is impossible.
 
-mod common;
+use crate::common;
 
 use common::*;
 use std::path::Path;

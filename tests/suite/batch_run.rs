@@ -1,7 +1,7 @@
 //! `mirrorsite batch`: good sessions done, a broken one failed and reported,
 //! re-runs skip current outputs, `--force` redoes them.
 
-mod common;
+use crate::common;
 
 use std::path::{Path, PathBuf};
 use std::process::{Command, Output};

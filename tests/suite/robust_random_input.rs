@@ -10,10 +10,10 @@
 //! contract checked: no panic, and on rejection an `InputError` that names
 //! the file given, fits on one line, and gives a line inside the text when it
 //! gives one. A case that breaks it is reported with its seed and input.
-//! `ROBUST_RANDOM_SCALE=50 cargo test --release --test robust_random_input`
+//! `ROBUST_RANDOM_SCALE=50 cargo test --release --test suite robust_random_input`
 //! searches deeper.
 
-mod common;
+use crate::common;
 
 use common::*;
 use mirrorsite::protocol;

@@ -14,7 +14,7 @@
 //! - kill -9 mid-write: always (a hidden `.<name>.partial-<pid>` sibling
 //!   remains, since SIGKILL skips all cleanup; the next run removes it).
 
-mod common;
+use crate::common;
 
 use common::*;
 use mirrorsite::output::{write_file_atomic, Staging};

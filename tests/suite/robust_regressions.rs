@@ -1,7 +1,7 @@
 //! Inputs that once broke the bad-input contract (found by the seeded random
-//! inputs of tests/robust_random_input.rs); see tests/fixtures/robust/README.md.
+//! inputs of tests/suite/robust_random_input.rs); see tests/fixtures/robust/README.md.
 
-mod common;
+use crate::common;
 
 use common::*;
 use mirrorsite::simulate::Scenario;

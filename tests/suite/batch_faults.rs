@@ -2,7 +2,7 @@
 //! runs and thread counts, a killed run leaves no output folder, degenerate
 //! data give flags or clear errors and never NaN, output errors are reported.
 
-mod common;
+use crate::common;
 
 use std::path::Path;
 use std::process::{Command, Output};

@@ -1,7 +1,7 @@
 //! A session's task blocks: from events.csv (words filled from the protocol)
 //! or from the protocol's timeline at `protocol_start_s`; finding protocols.
 
-mod protocol_common;
+use crate::protocol_common;
 
 use mirrorsite::protocol::{is_movement_block, resolve, session_blocks};
 use mirrorsite::session::{Block, BlockSource, EmgUnits, Manifest, Recording, Session, Side};

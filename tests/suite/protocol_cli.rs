@@ -1,6 +1,6 @@
 //! The `mirrorsite protocol` commands that need no terminal.
 
-mod protocol_common;
+use crate::protocol_common;
 
 use protocol_common::{line_of, TINY};
 use std::process::Command;

@@ -1,7 +1,7 @@
 //! Bad input: every class of defect gets one error naming the right file,
 //! line and field, and the session folder is never changed.
 
-mod common;
+use crate::common;
 
 use common::*;
 use mirrorsite::session;

@@ -11,7 +11,7 @@
 //! its figures are pinned instead. Every scenario also checks that a block
 //! that was not mirrored is marked failed and its rows are unusable.
 
-mod align_support;
+use crate::align_support;
 
 use align_support::*;
 use mirrorsite::align::{align, AlignConfig, Aligned, Verdict};

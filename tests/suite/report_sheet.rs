@@ -1,8 +1,7 @@
 //! The site-placement sheet: HTML content, PDF structure, paper sizes,
 //! determinism and (when poppler's pdftotext is installed) the PDF's text.
 
-#[path = "fixtures/report/fixture.rs"]
-mod fixture;
+use crate::report_fixture as fixture;
 
 use mirrorsite::report::{self, PageSize};
 use std::path::Path;

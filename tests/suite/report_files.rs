@@ -1,8 +1,7 @@
 //! `sites.json`, `sites.csv` and `figures/*.svg`: contract keys, round trip,
 //! rows, determinism.
 
-#[path = "fixtures/report/fixture.rs"]
-mod fixture;
+use crate::report_fixture as fixture;
 
 use mirrorsite::report::{self, SitesReport, SITES_CSV_COLUMNS};
 use serde_json::Value;

@@ -5,7 +5,7 @@
 //! Expected rows are worked out by hand from the rules in the play module's
 //! documentation.
 
-mod protocol_common;
+use crate::protocol_common;
 
 use mirrorsite::protocol::play::{
     play, EventFile, EventLog, Key, Outcome, PlayOptions, RecordingScreen, ScriptedKeys, SimClock,
