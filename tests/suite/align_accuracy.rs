@@ -6,10 +6,27 @@
 //! percentile at most 35 ms, in each of three scenarios: a drifting lag; a lag
 //! varying within cycles; a clock offset with the intact hand leading and
 //! other EMG and glove rates. The drift and offset scenarios meet it; the
-//! within-cycle scenario does not (its ±60 ms wobble with a 2 s period is
-//! below what the envelopes resolve), so its full-target test is ignored and
-//! its figures are pinned instead. Every scenario also checks that a block
-//! that was not mirrored is marked failed and its rows are unusable.
+//! within-cycle scenario does not, so its full-target test is ignored and its
+//! figures are pinned instead. Why it is not met, as measured:
+//!
+//! - Holds and passive returns carry no timing at all (both sides are still,
+//!   or the EMG is silent), and the ±60 ms, 2 s wobble goes on through them.
+//!   Even with the true lag on every actively moving row and straight lines
+//!   across the rest, the 90th percentile over all non-rest rows of this
+//!   scenario is 34.4 ms: the target leaves no room for any error elsewhere.
+//! - On moving rows the limit is not the envelope noise: a composite built
+//!   from the intact feature through the true map plus the measured residual
+//!   (circularly shifted, so it keeps its level and spectrum but not its
+//!   timing) is tracked to 4–7 ms median in the finger paced and the free
+//!   block. It is the composites, fitted through a map that is itself wrong:
+//!   a non-negative mix of antagonist crosstalk, or of displacement into a
+//!   speed feature, shifts a feature's apparent timing and so keeps part of
+//!   the map's error. With composites fitted through the true map the
+//!   refinement brings the paced blocks to 7–11 ms median; fitted through the
+//!   DTW map, to about 25 ms.
+//!
+//! Every scenario also checks that a block that was not mirrored is marked
+//! failed and its rows are unusable.
 
 use crate::align_support;
 
@@ -122,10 +139,11 @@ fn drifting_lag() {
     let (all, moving, hold, al) = figures("drift");
     verdicts("drift", &al);
     assert_full_target("drift", all);
-    // Measured: all 11.7 / 28.9 ms; paced+free 8.3 / 24.3 ms; hold-release
-    // 21.2 / 34.6 ms (106 / 318 ms before the speed-toward-rest features).
-    assert!(moving.0 <= 10.0 && moving.1 <= 29.0, "{moving:?}");
-    assert!(hold.0 <= 25.5 && hold.1 <= 42.0, "{hold:?}");
+    // Measured: all 11.8 / 31.7 ms; paced+free 9.2 / 23.7 ms; hold-release
+    // 23.3 / 35.9 ms (DTW map alone: 11.7 / 28.9, 8.3 / 24.3 and 21.2 / 34.6 ms;
+    // 106 / 318 ms in hold-release before the speed-toward-rest features).
+    assert!(moving.0 <= 11.0 && moving.1 <= 28.5, "{moving:?}");
+    assert!(hold.0 <= 28.0 && hold.1 <= 43.0, "{hold:?}");
 }
 
 #[test]
@@ -133,23 +151,27 @@ fn clock_offset_leading_intact_hand_and_an_unmirrored_block() {
     let (all, moving, hold, al) = figures("offset");
     verdicts("offset", &al);
     assert_full_target("offset", all);
-    // Measured: all 10.8 / 25.2 ms; paced+free 10.3 / 24.3 ms; hold-release 12.8 / 29.5 ms.
-    assert!(moving.0 <= 12.5 && moving.1 <= 29.0, "{moving:?}");
-    assert!(hold.0 <= 15.5 && hold.1 <= 36.0, "{hold:?}");
+    // Measured: all 9.4 / 27.8 ms; paced+free 8.8 / 24.8 ms; hold-release
+    // 14.8 / 52.2 ms (DTW map alone: 10.8 / 25.2, 10.3 / 24.3 and 12.8 / 29.5 ms:
+    // the refinement misplaces the release of one hold by about 80 ms).
+    assert!(moving.0 <= 10.5 && moving.1 <= 30.0, "{moving:?}");
+    assert!(hold.0 <= 18.0 && hold.1 <= 63.0, "{hold:?}");
 }
 
 #[test]
 fn lag_varying_within_cycles() {
-    let (all, moving, _, al) = figures("cycle");
+    let (all, moving, hold, al) = figures("cycle");
     verdicts("cycle", &al);
-    // Measured: all 32.3 / 74.0 ms; paced+free 31.5 / 71.5 ms: the ±60 ms,
-    // 2 s wobble is tracked only in part (see the ignored test below).
-    assert!(moving.0 <= 38.0 && moving.1 <= 86.0, "{moving:?}");
-    assert!(all.0 <= 39.0 && all.1 <= 89.0, "{all:?}");
+    // Measured: all 23.5 / 71.3 ms; paced+free 20.3 / 56.9 ms; hold-release
+    // 41.7 / 118.5 ms (DTW map alone: 32.3 / 74.0, 31.5 / 71.5 and 35.9 / 84.0 ms).
+    // The ±60 ms, 2 s wobble is tracked only in part (see the ignored test below).
+    assert!(moving.0 <= 24.5 && moving.1 <= 68.0, "{moving:?}");
+    assert!(all.0 <= 28.0 && all.1 <= 86.0, "{all:?}");
+    assert!(hold.0 <= 50.0 && hold.1 <= 142.0, "{hold:?}");
 }
 
 #[test]
-#[ignore = "not met: the envelope noise hides a ±60 ms lag wobble with a 2 s period"]
+#[ignore = "not met (23.5 / 71.3 ms): holds and passive returns carry no timing through the 2 s wobble, and composites fitted through an imperfect map bias the lag on moving rows; see the module docs"]
 fn full_target_lag_varying_within_cycles() {
     let (all, _, _, _) = figures("cycle");
     assert_full_target("cycle", all);
