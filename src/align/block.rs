@@ -181,12 +181,7 @@ pub fn align_block(d: &BlockData, cfg: &AlignConfig) -> Result<BlockOutcome> {
     let mut scale = vec![0.0; nc];
     for _round in 0..cfg.rounds {
         let fit = fit_channels(d, &basis, &env, &lag, None);
-        for c in 0..nc {
-            scale[c] = fit.scale[c];
-            composite[c] = standardise(&fit.composite[c], &fit.composite[c]);
-            let full = combine(&basis[c], &fit.beta[c], 0.0, len);
-            intact[c] = standardise(&full, &full[d.ext..d.ext + n]);
-        }
+        fit.adopt(d, &basis, &mut scale, &mut composite, &mut intact);
         if scale.iter().all(|&v| v == 0.0) {
             break;
         }
@@ -241,12 +236,7 @@ pub fn align_block(d: &BlockData, cfg: &AlignConfig) -> Result<BlockOutcome> {
                 break;
             }
             lag = finish_lag(refine(&chans, d.ext, &lag, &ropts), cfg, r);
-            for c in 0..nc {
-                scale[c] = fit.scale[c];
-                composite[c] = standardise(&fit.composite[c], &fit.composite[c]);
-                let full = combine(&basis[c], &fit.beta[c], 0.0, len);
-                intact[c] = standardise(&full, &full[d.ext..d.ext + n]);
-            }
+            fit.adopt(d, &basis, &mut scale, &mut composite, &mut intact);
         }
     }
     let used: Vec<usize> = (0..nc).filter(|&c| scale[c] > 0.0).collect();
@@ -315,6 +305,27 @@ struct Fit {
     beta: Vec<Vec<f64>>,
     /// Channel weight: the correlation of composite and intact feature inside the block (0 if below the floor).
     scale: Vec<f64>,
+}
+
+impl Fit {
+    /// Takes this fit as the block's current one: channel weights, standardised
+    /// composites, and each channel's intact feature (β applied to its basis on
+    /// the extended grid, standardised over the window).
+    fn adopt(
+        &self,
+        d: &BlockData,
+        basis: &[Vec<Vec<f64>>],
+        scale: &mut [f64],
+        composite: &mut [Vec<f64>],
+        intact: &mut [Vec<f64>],
+    ) {
+        for c in 0..basis.len() {
+            scale[c] = self.scale[c];
+            composite[c] = standardise(&self.composite[c], &self.composite[c]);
+            let full = combine(&basis[c], &self.beta[c], 0.0, d.n + 2 * d.ext);
+            intact[c] = standardise(&full, &full[d.ext..d.ext + d.n]);
+        }
+    }
 }
 
 /// Fits β and the composites of every channel through `lag` (samples). With

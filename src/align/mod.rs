@@ -45,6 +45,7 @@
 //! and velocity of each DoF ([`Aligned`]). [`output`] writes `aligned.csv`,
 //! `alignment.json` and the before/after figures.
 
+mod banded;
 mod block;
 mod config;
 pub mod dtw;

@@ -45,7 +45,9 @@
 
 #![allow(clippy::needless_range_loop)] // index loops mirror the formulas
 
-use super::features::lerp_at;
+use super::banded::Banded;
+use super::features::{lerp_at, mean_sd};
+use crate::signal::envelope::percentile;
 
 /// One channel as the refinement sees it.
 pub struct RefineChannel<'a> {
@@ -164,91 +166,6 @@ impl Layout {
     }
 }
 
-/// A symmetric banded matrix (lower half stored by diagonals) with a Cholesky solve.
-#[derive(Clone)]
-struct Banded {
-    n: usize,
-    bw: usize,
-    /// `d[o][i]` = A(i + o, i).
-    d: Vec<Vec<f64>>,
-}
-
-impl Banded {
-    fn new(n: usize, bw: usize) -> Self {
-        Banded {
-            n,
-            bw,
-            d: vec![vec![0.0; n]; bw + 1],
-        }
-    }
-
-    /// Adds v to A(r, c) (and its mirror); |r − c| ≤ bw.
-    fn add(&mut self, r: usize, c: usize, v: f64) {
-        let (hi, lo) = if r >= c { (r, c) } else { (c, r) };
-        self.d[hi - lo][lo] += v;
-    }
-
-    /// Adds μ D₂ᵀD₂.
-    fn add_second_difference(&mut self, mu: f64) {
-        if self.n < 3 {
-            return;
-        }
-        let c = [1.0, -2.0, 1.0];
-        for s in 0..self.n - 2 {
-            for p in 0..3 {
-                for q in p..3 {
-                    self.add(s + p, s + q, mu * c[p] * c[q]);
-                }
-            }
-        }
-    }
-
-    fn diag_mean(&self) -> f64 {
-        self.d[0].iter().sum::<f64>() / self.n.max(1) as f64
-    }
-
-    /// Solves A x = b by banded Cholesky; `None` when A is not positive definite.
-    fn solve(&self, b: &[f64]) -> Option<Vec<f64>> {
-        let (n, bw) = (self.n, self.bw);
-        // l[o][i] = L(i + o, i)
-        let mut l = vec![vec![0.0; n]; bw + 1];
-        for j in 0..n {
-            let mut s = self.d[0][j];
-            for k in j.saturating_sub(bw)..j {
-                let v = l[j - k][k];
-                s -= v * v;
-            }
-            if !(s > 0.0 && s.is_finite()) {
-                return None;
-            }
-            let djj = s.sqrt();
-            l[0][j] = djj;
-            for o in 1..=bw.min(n - 1 - j) {
-                let i = j + o;
-                let mut s = self.d[o][j];
-                for k in i.saturating_sub(bw)..j {
-                    s -= l[i - k][k] * l[j - k][k];
-                }
-                l[o][j] = s / djj;
-            }
-        }
-        let mut y = b.to_vec();
-        for i in 0..n {
-            for k in i.saturating_sub(bw)..i {
-                y[i] -= l[i - k][k] * y[k];
-            }
-            y[i] /= l[0][i];
-        }
-        for i in (0..n).rev() {
-            for k in i + 1..=(i + bw).min(n - 1) {
-                y[i] -= l[k - i][i] * y[k];
-            }
-            y[i] /= l[0][i];
-        }
-        Some(y)
-    }
-}
-
 /// D₂ᵀD₂ θ.
 fn second_difference_times(theta: &[f64]) -> Vec<f64> {
     let n = theta.len();
@@ -263,20 +180,6 @@ fn second_difference_times(theta: &[f64]) -> Vec<f64> {
         out[s + 2] += dv;
     }
     out
-}
-
-/// Median of a slice (NaN when empty).
-fn median(v: &mut [f64]) -> f64 {
-    if v.is_empty() {
-        return f64::NAN;
-    }
-    v.sort_by(f64::total_cmp);
-    let m = v.len() / 2;
-    if v.len() % 2 == 1 {
-        v[m]
-    } else {
-        0.5 * (v[m - 1] + v[m])
-    }
 }
 
 /// Value and derivative (per sample) of a series at fractional index x.
@@ -306,6 +209,8 @@ pub fn refine(ch: &[RefineChannel], ext: usize, lag0: &[f64], o: &RefineOptions)
         return lag0.to_vec();
     };
     let mut robust = vec![vec![1.0; n]; ch.len()];
+    // per channel: the standard deviation of its composite (for the scale floor)
+    let spreads: Vec<f64> = ch.iter().map(|c| mean_sd(c.composite).1).collect();
     let clamp = |v: (Vec<f64>, Vec<f64>)| -> (Vec<f64>, Vec<f64>) {
         let (mut l, d) = v;
         for x in &mut l {
@@ -373,16 +278,12 @@ pub fn refine(ch: &[RefineChannel], ext: usize, lag0: &[f64], o: &RefineOptions)
     let mut f_now = objective(&lag, &der, &theta, &robust, mu);
     for it in 0..o.iterations {
         if it >= 1 && o.tukey_c.is_finite() {
-            for (c, wc) in ch.iter().zip(robust.iter_mut()) {
+            for ((c, wc), spread) in ch.iter().zip(robust.iter_mut()).zip(&spreads) {
                 let res: Vec<f64> = (0..n)
                     .map(|i| c.composite[i] - model(c, ext, i, lag[i], 1.0 + der[i]))
                     .collect();
-                let mut abs: Vec<f64> = res.iter().map(|v| v.abs()).collect();
-                let spread = {
-                    let m = c.composite.iter().sum::<f64>() / n as f64;
-                    (c.composite.iter().map(|v| (v - m) * (v - m)).sum::<f64>() / n as f64).sqrt()
-                };
-                let scale = (1.4826 * median(&mut abs)).max(o.scale_floor * spread);
+                let abs: Vec<f64> = res.iter().map(|v| v.abs()).collect();
+                let scale = (1.4826 * percentile(&abs, 50.0)).max(o.scale_floor * spread);
                 for i in 0..n {
                     let u = res[i] / (o.tukey_c * scale);
                     wc[i] = if u.abs() >= 1.0 {
@@ -404,9 +305,7 @@ pub fn refine(ch: &[RefineChannel], ext: usize, lag0: &[f64], o: &RefineOptions)
         let mut accepted = false;
         for _try in 0..6 {
             let mut damped = a.clone();
-            for v in damped.d[0].iter_mut() {
-                *v += nu * base_diag;
-            }
+            damped.add_to_diagonal(nu * base_diag);
             let Some(delta) = damped.solve(&rhs) else {
                 nu *= 10.0;
                 continue;
@@ -439,40 +338,6 @@ pub fn refine(ch: &[RefineChannel], ext: usize, lag0: &[f64], o: &RefineOptions)
 #[cfg(test)]
 mod tests {
     use super::*;
-
-    #[test]
-    fn banded_cholesky_matches_a_dense_solve() {
-        // A = tridiagonal(−1, 4, −1) + a (0, 3) band entry of 0.5; x = [1..6].
-        let n = 6;
-        let mut a = Banded::new(n, 3);
-        for i in 0..n {
-            a.add(i, i, 4.0);
-            if i + 1 < n {
-                a.add(i + 1, i, -1.0);
-            }
-        }
-        a.add(3, 0, 0.5);
-        let x: Vec<f64> = (1..=n).map(|v| v as f64).collect();
-        let mut b = vec![0.0; n];
-        for i in 0..n {
-            for j in 0..n {
-                let v = if i == j {
-                    4.0
-                } else if i.abs_diff(j) == 1 {
-                    -1.0
-                } else if (i, j) == (3, 0) || (i, j) == (0, 3) {
-                    0.5
-                } else {
-                    0.0
-                };
-                b[i] += v * x[j];
-            }
-        }
-        let got = a.solve(&b).unwrap();
-        for (g, w) in got.iter().zip(&x) {
-            assert!((g - w).abs() < 1e-12, "{got:?}");
-        }
-    }
 
     #[test]
     fn cubic_basis_is_a_partition_of_unity_with_matching_derivatives() {

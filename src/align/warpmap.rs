@@ -9,13 +9,15 @@
 //! minimise Σ_i w_i (ℓ_i − ℓ̂_i)² + λ Σ_i (ℓ_{i+1} − 2ℓ_i + ℓ_{i−1})²
 //! ```
 //!
-//! solved exactly as the pentadiagonal system (W + λ DᵀD) ℓ = W ℓ̂. With
+//! solved exactly as the pentadiagonal system (W + λ DᵀD) ℓ = W ℓ̂ (band
+//! Cholesky, [`super::banded`]). With
 //! weights of mean 1, λ = (P / 2π)⁴ puts the half-gain period at P samples.
 //! Where the features carry no timing (holds, rests) the weights are small
 //! and the lag is interpolated smoothly from the moving stretches around.
 //! Finally every step of the map i ↦ i + ℓ_i is kept within the slope
 //! limits [1/s, s], so the map is strictly increasing.
 
+use super::banded::Banded;
 use crate::{Error, Result};
 
 /// Raw lag per EMG-grid index from a DTW path (samples), for `n` query
@@ -79,74 +81,18 @@ pub fn whittaker(y: &[f64], w: &[f64], period: f64) -> Result<Vec<f64>> {
         ));
     }
     let lambda = (period.max(1.0) / (2.0 * std::f64::consts::PI)).powi(4);
-    // Banded matrix A = W + λ DᵀD: diagonals a0 (main), a1 (first off), a2 (second off).
-    let mut a0 = vec![0.0; n];
-    let mut a1 = vec![0.0; n];
-    let mut a2 = vec![0.0; n];
+    // A = W + λ DᵀD (pentadiagonal), solved by band Cholesky.
+    let mut a = Banded::new(n, 2);
     let mut b = vec![0.0; n];
     for i in 0..n {
         let wi = w[i] / mean_w;
-        a0[i] = wi;
+        a.add(i, i, wi);
         b[i] = wi * y[i];
     }
-    // DᵀD from rows d_k = (1, −2, 1) at k, k+1, k+2.
-    for k in 0..n - 2 {
-        let c = [1.0, -2.0, 1.0];
-        for p in 0..3 {
-            a0[k + p] += lambda * c[p] * c[p];
-        }
-        a1[k] += lambda * c[0] * c[1];
-        a1[k + 1] += lambda * c[1] * c[2];
-        a2[k] += lambda * c[0] * c[2];
-    }
-    // LDLᵀ of the symmetric pentadiagonal matrix: L unit lower with bands l1, l2.
-    let mut d = vec![0.0; n];
-    let mut l1 = vec![0.0; n];
-    let mut l2 = vec![0.0; n];
-    for i in 0..n {
-        let mut di = a0[i];
-        if i >= 1 {
-            di -= l1[i - 1] * l1[i - 1] * d[i - 1];
-        }
-        if i >= 2 {
-            di -= l2[i - 2] * l2[i - 2] * d[i - 2];
-        }
-        if di.is_nan() || di <= 0.0 {
-            return Err(Error::Analysis("the warp-map smoother is singular".into()));
-        }
-        d[i] = di;
-        if i + 1 < n {
-            let mut v = a1[i];
-            if i >= 1 {
-                v -= l2[i - 1] * l1[i - 1] * d[i - 1];
-            }
-            l1[i] = v / di;
-        }
-        if i + 2 < n {
-            l2[i] = a2[i] / di;
-        }
-    }
-    // Solve L z = b, D u = z, Lᵀ x = u.
-    let mut z = b;
-    for i in 0..n {
-        if i >= 1 {
-            z[i] -= l1[i - 1] * z[i - 1];
-        }
-        if i >= 2 {
-            z[i] -= l2[i - 2] * z[i - 2];
-        }
-    }
-    for i in 0..n {
-        z[i] /= d[i];
-    }
-    for i in (0..n).rev() {
-        if i + 1 < n {
-            z[i] -= l1[i] * z[i + 1];
-        }
-        if i + 2 < n {
-            z[i] -= l2[i] * z[i + 2];
-        }
-    }
+    a.add_second_difference(lambda);
+    let z = a
+        .solve(&b)
+        .ok_or_else(|| Error::Analysis("the warp-map smoother is singular".into()))?;
     Ok(z)
 }
 
