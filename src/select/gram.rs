@@ -210,14 +210,12 @@ impl Gram {
                 self.dim()
             )));
         }
-        let d = self.dim();
+        // cᵀ Z ᵀZ c over the non-zero coefficients only
+        let nz: Vec<usize> = (0..self.dim()).filter(|&j| coef[j] != 0.0).collect();
         let mut quad = 0.0;
-        for j in 0..d {
-            if coef[j] == 0.0 {
-                continue;
-            }
+        for &j in &nz {
             let col = self.zz.col_as_slice(j);
-            let s: f64 = col.iter().zip(coef).map(|(a, b)| a * b).sum();
+            let s: f64 = nz.iter().map(|&i| col[i] * coef[i]).sum();
             quad += coef[j] * s;
         }
         let lin: f64 = self.zy.iter().zip(coef).map(|(a, b)| a * b).sum();

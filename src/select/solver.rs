@@ -47,12 +47,13 @@
 //!   coordinate descent by Bertrand & Massias 2021, *AISTATS*) is tried every
 //!   `anderson + 1` sweeps and kept only if it lowers the objective.
 //! * Newton steps on the active groups: whenever the set of non-zero groups
-//!   is the same as after the previous sweep (or as in the warm start), at
-//!   most every other sweep, the objective is smooth there and a Newton step is taken (Hessian
+//!   is the same as after the previous sweep (or as in the warm start), the
+//!   objective is smooth there and a Newton step is taken after the sweep (Hessian
 //!   `Q_AA + blockdiag(α_k (I − u_k u_kᵀ))`, `α_k = λw_k/‖η_k‖`,
 //!   `u_k = η_k/‖η_k‖`), solved by conjugate gradients preconditioned with the
 //!   Cholesky factor of an earlier Hessian on the same coordinates, or by a
-//!   fresh Cholesky factorisation. The CG solve is inexact: it stops at a
+//!   fresh Cholesky factorisation; inside CG the products run in single
+//!   precision (see `newton_dense`). The CG solve is inexact: it stops at a
 //!   relative residual of 1e-2 (an inexact Newton method, Dembo, Eisenstat &
 //!   Steihaug 1982, *SIAM J Numer Anal* 19:400–408), which costs far fewer
 //!   passes over the Hessian than an exact solve with a stale preconditioner;
@@ -60,8 +61,10 @@
 //!   kept only if it lowers the objective, so BCD alone decides which groups
 //!   are active. This removes the slow tail of BCD on ill-conditioned,
 //!   correlated groups.
-//! * A predictor along the path: the start at `λ_t` is extrapolated linearly
-//!   in `log λ` from the two previous solutions (kept only if better).
+//! * A predictor along the path: the start at `λ_t` is extrapolated in
+//!   `log λ` from the previous solutions, quadratically through three when
+//!   they share their active set, else linearly through two (kept only if
+//!   better).
 //!
 //! # Stopping rule
 //!
@@ -429,14 +432,17 @@ impl GroupLasso {
             lam_prev = lambdas.first().copied().unwrap_or(lmax);
         }
         let mut fits = Vec::with_capacity(lambdas.len());
-        // (η, λ) of the solution before the previous one, for the predictor
-        let mut older: Option<(Vec<f64>, f64)> = None;
+        // (η, g, λ) of the solutions before the current start (latest last),
+        // for the predictor
+        let mut history: Vec<(Vec<f64>, Vec<f64>, f64)> = Vec::new();
         for &lam in lambdas {
-            let before = st.eta.clone();
-            let pred = older.as_ref().map(|(e, l)| (e.as_slice(), *l));
-            let fit = self.solve_one(&mut st, weights, lam, lam_prev, pred, opts);
+            let before = (st.eta.clone(), st.g.clone(), lam_prev);
+            let fit = self.solve_one(&mut st, weights, lam, lam_prev, &history, opts);
             fits.push(fit);
-            older = Some((before, lam_prev));
+            history.push(before);
+            if history.len() > 2 {
+                history.remove(0);
+            }
             lam_prev = lam;
         }
         Ok(fits)
@@ -449,7 +455,7 @@ impl GroupLasso {
         w: &[f64],
         lam: f64,
         lam_prev: f64,
-        older: Option<(&[f64], f64)>,
+        history: &[(Vec<f64>, Vec<f64>, f64)],
         opts: &SolverOptions,
     ) -> Fit {
         let kg = self.n_groups();
@@ -462,9 +468,7 @@ impl GroupLasso {
                 !opts.strong_rule || active || norm(&st.g[r]) >= w[k] * (2.0 * lam - lam_prev);
             in_ws[k] = keep;
         }
-        if let Some((eta_old, lam_old)) = older {
-            self.predict(st, w, lam, lam_prev, eta_old, lam_old);
-        }
+        self.predict(st, w, lam, lam_prev, history);
         let mut sweeps = 0;
         let mut converged;
         loop {
@@ -493,61 +497,119 @@ impl GroupLasso {
                 break;
             }
         }
+        // After a converged working-set solve `g` is exact on the working set
+        // (confirmed there) and outside it (refreshed for the KKT check).
+        if !converged {
+            self.refresh_gradient(st, None);
+        }
         let (objective, gap, kkt) = self.certificate(st, w, lam);
         let converged =
             converged && gap <= opts.tol_gap * self.null_objective() && kkt <= opts.tol_kkt;
         self.make_fit(st, w, lam, objective, gap, kkt, sweeps, converged)
     }
 
-    /// Predictor along the path: for groups active at both previous λ, try
-    /// `η ← η_{t−1} + τ (η_{t−1} − η_{t−2})`, `τ = ln(λ_t/λ_{t−1}) / ln(λ_{t−1}/λ_{t−2})`
-    /// (linear in log λ), and keep it only if it lowers the objective at `λ_t`.
+    /// Predictor along the path, by polynomial extrapolation in `log λ`
+    /// through the current start `η_{t−1}` and the solutions before it
+    /// (`history`, latest last). If the same groups are non-zero in the last
+    /// three solutions, the candidate is the quadratic through them,
+    /// `η ← Σ_i ℓ_i η_{t−i}` with Lagrange weights `ℓ_i` at `log λ_t`;
+    /// otherwise the groups non-zero in the last two are moved along the
+    /// line through them (`η_{t−1} + τ (η_{t−1} − η_{t−2})`,
+    /// `τ = ln(λ_t/λ_{t−1}) / ln(λ_{t−1}/λ_{t−2})`). The candidate is kept only
+    /// if it lowers the objective at `λ_t`. `g` is affine in `η` and the
+    /// weights add up to 1, so when every group that differs between the
+    /// solutions is extrapolated the candidate's gradient is `Σ_i ℓ_i g_{t−i}`
+    /// with no pass over `Q`; otherwise it is `g_{t−1} − Q Δ` over the columns
+    /// of the extrapolated groups.
     fn predict(
         &self,
         st: &mut State,
         w: &[f64],
         lam: f64,
         lam_prev: f64,
-        eta_old: &[f64],
-        lam_old: f64,
+        history: &[(Vec<f64>, Vec<f64>, f64)],
     ) {
+        let Some((eta_old, g_old, lam_old)) = history.last() else {
+            return;
+        };
+        let lam_old = *lam_old;
         if !(lam_old > lam_prev && lam_prev > lam) {
             return;
         }
-        let tau = (lam / lam_prev).ln() / (lam_prev / lam_old).ln();
-        let mut cand = st.eta.clone();
-        let mut moved = false;
-        for k in (0..self.n_groups()).filter(|&k| w[k].is_finite()) {
-            let r = self.group_range(k);
-            let both = st.eta[r.clone()].iter().any(|&x| x != 0.0)
-                && eta_old[r.clone()].iter().any(|&x| x != 0.0);
-            if both {
-                for i in r {
-                    cand[i] += tau * (st.eta[i] - eta_old[i]);
-                }
-                moved = true;
+        let p = self.dim();
+        let nz = |e: &[f64], k: usize| e[self.group_range(k)].iter().any(|&x| x != 0.0);
+        let finite: Vec<usize> = (0..self.n_groups()).filter(|&k| w[k].is_finite()).collect();
+        let same = |a: &[f64], b: &[f64]| finite.iter().all(|&k| nz(a, k) == nz(b, k));
+        // the solutions used and their Lagrange weights at x = ln λ_t
+        let mut pts: Vec<(&[f64], &[f64], f64)> =
+            vec![(&st.eta, &st.g, lam_prev), (eta_old, g_old, lam_old)];
+        if history.len() >= 2 {
+            let (e3, g3, l3) = &history[history.len() - 2];
+            if *l3 > lam_old && same(&st.eta, eta_old) && same(eta_old, e3) {
+                pts.push((e3, g3, *l3));
             }
         }
-        if !moved {
+        let xs: Vec<f64> = pts.iter().map(|p| p.2.ln()).collect();
+        let x = lam.ln();
+        let weights: Vec<f64> = (0..xs.len())
+            .map(|i| {
+                (0..xs.len())
+                    .filter(|&j| j != i)
+                    .map(|j| (x - xs[j]) / (xs[i] - xs[j]))
+                    .product()
+            })
+            .collect();
+        let mut cand = st.eta.clone();
+        let mut moved = Vec::new();
+        let mut all_moved = true;
+        for &k in &finite {
+            let r = self.group_range(k);
+            let (now, before) = (nz(&st.eta, k), nz(eta_old, k));
+            if now && before {
+                for i in r {
+                    cand[i] = pts.iter().zip(&weights).map(|(p, l)| l * p.0[i]).sum();
+                }
+                moved.push(k);
+            } else if now || before {
+                all_moved = false;
+            }
+        }
+        if moved.is_empty() {
             return;
         }
         let objective = |eta: &[f64], g: &[f64]| {
             let ce: f64 = self.c.iter().zip(eta).map(|(a, b)| a * b).sum();
             let ge: f64 = g.iter().zip(eta).map(|(a, b)| a * b).sum();
-            let pen: f64 = (0..self.n_groups())
-                .filter(|&k| w[k].is_finite())
-                .map(|k| w[k] * norm(&eta[self.group_range(k)]))
+            let pen: f64 = finite
+                .iter()
+                .map(|&k| w[k] * norm(&eta[self.group_range(k)]))
                 .sum();
             0.5 * self.yy - 0.5 * ce - 0.5 * ge + lam * pen
         };
         let f_cur = objective(&st.eta, &st.g);
-        let mut g = vec![0.0; self.dim()];
-        std::mem::swap(&mut g, &mut st.g);
-        let old = std::mem::replace(&mut st.eta, cand);
-        self.refresh_gradient(st, None);
-        if objective(&st.eta, &st.g) >= f_cur {
-            st.eta = old;
-            st.g = g;
+        let g_cand: Vec<f64> = if all_moved {
+            (0..p)
+                .map(|i| pts.iter().zip(&weights).map(|(pt, l)| l * pt.1[i]).sum())
+                .collect()
+        } else {
+            let mut g = st.g.clone();
+            for &k in &moved {
+                let r = self.group_range(k);
+                let delta: Vec<f64> = r.clone().map(|i| cand[i] - st.eta[i]).collect();
+                matmul(
+                    MatMut::from_column_major_slice_mut(&mut g, p, 1),
+                    Accum::Add,
+                    MatRef::from_column_major_slice(&self.q[r.start * p..r.end * p], p, r.len()),
+                    MatRef::from_column_major_slice(&delta, r.len(), 1),
+                    -1.0,
+                    Par::Seq,
+                );
+            }
+            g
+        };
+        if objective(&cand, &g_cand) < f_cur {
+            st.eta = cand;
+            st.g = g_cand;
         }
     }
 
@@ -652,7 +714,6 @@ impl GroupLasso {
         let mut last_active: Vec<bool> = (0..ws.len())
             .map(|k| eta[gstart[k]..gstart[k + 1]].iter().any(|&x| x != 0.0))
             .collect();
-        let mut last_newton: Option<usize> = None;
         while sweeps < budget {
             for (gi, &_k) in ws.iter().enumerate() {
                 let (s, e) = (gstart[gi], gstart[gi + 1]);
@@ -693,8 +754,7 @@ impl GroupLasso {
                 let act: Vec<bool> = (0..ws.len())
                     .map(|k| eta[gstart[k]..gstart[k + 1]].iter().any(|&x| x != 0.0))
                     .collect();
-                if act == last_active && last_newton.is_none_or(|s| sweeps >= s + 2) {
-                    last_newton = Some(sweeps);
+                if act == last_active {
                     if let Some((e2, g2)) = newton_dense(
                         qw,
                         &cw,
@@ -736,8 +796,7 @@ impl GroupLasso {
 
     /// Objective, duality gap and KKT residual over all finite-weight groups
     /// (expects `st.g` exact everywhere).
-    fn certificate(&self, st: &mut State, w: &[f64], lam: f64) -> (f64, f64, f64) {
-        self.refresh_gradient(st, None);
+    fn certificate(&self, st: &State, w: &[f64], lam: f64) -> (f64, f64, f64) {
         let kg = self.n_groups();
         let mut gstart = Vec::new();
         let mut idx = Vec::new();
@@ -803,21 +862,6 @@ impl GroupLasso {
 /// Euclidean norm.
 fn norm(v: &[f64]) -> f64 {
     v.iter().map(|x| x * x).sum::<f64>().sqrt()
-}
-
-/// `Q v` on a compact working set (`Q` is `m × m`, column-major).
-fn compact_product(qw: &[f64], v: &[f64]) -> Vec<f64> {
-    let m = v.len();
-    let mut out = vec![0.0; m];
-    matmul(
-        MatMut::from_column_major_slice_mut(&mut out, m, 1),
-        Accum::Replace,
-        MatRef::from_column_major_slice(qw, m, m),
-        MatRef::from_column_major_slice(v, m, 1),
-        1.0,
-        Par::Seq,
-    );
-    out
 }
 
 /// `g = c − Qη` on a compact working set.
@@ -899,11 +943,16 @@ fn compact_certificate(
     (primal, (primal - dual).max(0.0), kkt)
 }
 
-/// A Cholesky factor of a Newton Hessian on the listed (global) coordinates.
+/// What the Newton steps keep between calls, for the coordinates `coords`
+/// (global indices): `Q_AA` and the Cholesky factor of an earlier Hessian on
+/// them, both in single precision (see [`newton_dense`] for why that is safe).
 #[derive(Debug, Clone)]
 struct NewtonCache {
     coords: Vec<usize>,
-    factor: Mat<f64>,
+    /// `Q_AA`, single precision, column-major.
+    qaa: Mat<f32>,
+    /// Lower Cholesky factor of the Hessian at the last factorisation.
+    factor: Mat<f32>,
 }
 
 /// Iteration limit of [`pcg`].
@@ -912,34 +961,24 @@ const PCG_MAX_ITER: usize = 10;
 /// term of an inexact Newton method).
 const PCG_FORCING: f64 = 1e-2;
 
-/// Conjugate gradients for `H x = b` preconditioned by `(L Lᵀ)⁻¹`, `L` the
-/// Cholesky factor of a nearby Hessian; `None` if [`PCG_MAX_ITER`] iterations
-/// do not reach a relative residual `‖b − Hx‖ ≤ PCG_FORCING ‖b‖` (the caller
-/// then factorises afresh). Every CG iterate started from 0 lowers the
-/// quadratic model `½xᵀHx − bᵀx`, so it is a descent direction.
+/// Conjugate gradients for `H x = b` with the preconditioner `precond`
+/// (`z ← M⁻¹ r`, `M` the Hessian of an earlier factorisation); `None` if
+/// [`PCG_MAX_ITER`] iterations do not reach a relative residual
+/// `‖b − Hx‖ ≤ PCG_FORCING ‖b‖` (the caller then factorises afresh). Every CG
+/// iterate started from 0 lowers the quadratic model `½xᵀHx − bᵀx`, so it is
+/// a descent direction. Scalars and vectors are double precision.
 fn pcg(
     hv: impl Fn(&[f64], &mut [f64]),
-    l: MatRef<'_, f64>,
+    mut precond: impl FnMut(&[f64], &mut [f64]),
     b: &[f64],
-    stack: &mut faer::dyn_stack::MemStack,
 ) -> Option<Vec<f64>> {
-    use faer::linalg::cholesky::llt;
     let n = b.len();
     let dot = |a: &[f64], b: &[f64]| a.iter().zip(b).map(|(x, y)| x * y).sum::<f64>();
-    let precond = |r: &[f64], z: &mut Vec<f64>, stack: &mut faer::dyn_stack::MemStack| {
-        z.copy_from_slice(r);
-        llt::solve::solve_in_place(
-            l,
-            MatMut::from_column_major_slice_mut(z, n, 1),
-            Par::Seq,
-            stack,
-        );
-    };
     let bnorm = dot(b, b).sqrt();
     let mut x = vec![0.0; n];
     let mut r = b.to_vec();
     let mut z = vec![0.0; n];
-    precond(&r, &mut z, stack);
+    precond(&r, &mut z);
     let mut p = z.clone();
     let mut rz = dot(&r, &z);
     let mut hp = vec![0.0; n];
@@ -957,7 +996,7 @@ fn pcg(
         if dot(&r, &r).sqrt() <= PCG_FORCING * bnorm {
             return Some(x);
         }
-        precond(&r, &mut z, stack);
+        precond(&r, &mut z);
         let rz2 = dot(&r, &z);
         let beta = rz2 / rz;
         rz = rz2;
@@ -971,11 +1010,22 @@ fn pcg(
 /// A Newton step on the non-zero groups, where the objective is smooth.
 ///
 /// With `α_k = λw_k/‖η_k‖` and `u_k = η_k/‖η_k‖` the Hessian restricted to
-/// those groups is `Q_AA + blockdiag(α_k (I − u_k u_kᵀ))` and the gradient is
-/// `−g_A + α ∘ η_A`. The step solves the Newton system by a dense Cholesky
-/// factorisation (faer, sequential) and is damped by backtracking; it is
+/// those groups is `H = Q_AA + blockdiag(α_k (I − u_k u_kᵀ))` and the gradient
+/// is `−g_A + α ∘ η_A`. The Newton system is solved by preconditioned
+/// conjugate gradients ([`pcg`]) with the Cholesky factor of an earlier
+/// Hessian on the same coordinates, or, when there is none or CG does not
+/// reach the forcing tolerance, by a fresh double-precision Cholesky
+/// factorisation (faer, sequential), which is then kept.
+///
+/// Inside CG, `Q_AA v` and the preconditioner solve run in single precision
+/// (half the memory traffic and twice the SIMD width of double; these two
+/// matrix passes are most of the solver's time). That is safe because CG only
+/// has to meet a relative residual of `PCG_FORCING` = 1e-2, while a single-
+/// precision product errs by about `√p · 6e-8` relative, and because the
+/// direction is checked in double precision afterwards: the gradient change
+/// `Q x` is computed in double, and the step is damped by backtracking and
 /// returned only if it lowers the objective, so BCD keeps control of the
-/// active set.
+/// active set and the stopping rule is unaffected.
 #[allow(clippy::too_many_arguments)]
 fn newton_dense(
     qw: &[f64],
@@ -994,6 +1044,7 @@ fn newton_dense(
     let m = cw.len();
     let mut coords = Vec::new();
     let mut blocks = Vec::new(); // (start in coords, end, α, ‖η_k‖)
+    let mut groups = Vec::new(); // non-zero groups (compact index)
     for k in 0..thr.len() {
         let (a, b) = (gstart[k], gstart[k + 1]);
         let n = norm(&eta[a..b]);
@@ -1001,6 +1052,7 @@ fn newton_dense(
             let s = coords.len();
             coords.extend((a..b).filter(|&i| dw[i] > 0.0));
             blocks.push((s, coords.len(), thr[k] / n, n));
+            groups.push(k);
         }
     }
     let na = coords.len();
@@ -1014,35 +1066,71 @@ fn newton_dense(
         }
     }
     let global: Vec<usize> = coords.iter().map(|&i| idx[i]).collect();
-    let mut mem = MemBuffer::new(llt::factor::cholesky_in_place_scratch::<f64>(
-        na,
-        Par::Seq,
-        Default::default(),
-    ));
-    let stack = MemStack::new(&mut mem);
     let mut solved = false;
     if let Some(c) = cache.as_ref().filter(|c| c.coords == global) {
+        let mut mem = MemBuffer::new(llt::solve::solve_in_place_scratch::<f32>(na, 1, Par::Seq));
+        let stack = MemStack::new(&mut mem);
+        let v32 = std::cell::RefCell::new(vec![0.0f32; na]);
+        let o32 = std::cell::RefCell::new(vec![0.0f32; na]);
         // H v = Q_AA v + blockdiag(α_k (I − u_k u_kᵀ)) v, without forming H
         let hv = |v: &[f64], out: &mut [f64]| {
-            let mut full = vec![0.0; m];
-            for (r, &i) in coords.iter().enumerate() {
-                full[i] = v[r];
+            let (mut v32, mut o32) = (v32.borrow_mut(), o32.borrow_mut());
+            for (a, b) in v32.iter_mut().zip(v) {
+                *a = *b as f32;
             }
-            let qf = compact_product(qw, &full);
+            matmul(
+                MatMut::from_column_major_slice_mut(&mut o32, na, 1),
+                Accum::Replace,
+                c.qaa.as_ref(),
+                MatRef::from_column_major_slice(&v32, na, 1),
+                1.0f32,
+                Par::Seq,
+            );
             for &(s, e, alpha, n) in &blocks {
                 let uv: f64 = (s..e).map(|r| eta[coords[r]] / n * v[r]).sum();
                 for r in s..e {
-                    out[r] = qf[coords[r]] + alpha * (v[r] - eta[coords[r]] / n * uv);
+                    out[r] = o32[r] as f64 + alpha * (v[r] - eta[coords[r]] / n * uv);
                 }
             }
         };
-        if let Some(sol) = pcg(hv, c.factor.as_ref(), rhs.col_as_slice(0), stack) {
+        let mut z32 = vec![0.0f32; na];
+        let precond = |r: &[f64], z: &mut [f64]| {
+            for (a, b) in z32.iter_mut().zip(r) {
+                *a = *b as f32;
+            }
+            llt::solve::solve_in_place(
+                c.factor.as_ref(),
+                MatMut::from_column_major_slice_mut(&mut z32, na, 1),
+                Par::Seq,
+                stack,
+            );
+            for (a, b) in z.iter_mut().zip(&z32) {
+                *a = *b as f64;
+            }
+        };
+        if let Some(sol) = pcg(hv, precond, rhs.col_as_slice(0)) {
             rhs.col_as_slice_mut(0).copy_from_slice(&sol);
             solved = true;
         }
     }
     if !solved {
-        let mut h = Mat::from_fn(na, na, |r, c| qw[coords[c] * m + coords[r]]);
+        let mut mem = MemBuffer::new(llt::factor::cholesky_in_place_scratch::<f64>(
+            na,
+            Par::Seq,
+            Default::default(),
+        ));
+        let stack = MemStack::new(&mut mem);
+        // gather Q_AA column by column; keep a single-precision copy for CG
+        let mut h = Mat::<f64>::zeros(na, na);
+        let mut qaa = Mat::<f32>::zeros(na, na);
+        for (c, &jc) in coords.iter().enumerate() {
+            let src = &qw[jc * m..(jc + 1) * m];
+            let (hc, qc) = (h.col_as_slice_mut(c), qaa.col_as_slice_mut(c));
+            for (r, &jr) in coords.iter().enumerate() {
+                hc[r] = src[jr];
+                qc[r] = src[jr] as f32;
+            }
+        }
         for &(s, e, alpha, n) in &blocks {
             for c in s..e {
                 let uc = eta[coords[c]] / n;
@@ -1063,7 +1151,17 @@ fn newton_dense(
         llt::solve::solve_in_place(h.as_ref(), rhs.as_mut(), Par::Seq, stack);
         *cache = Some(NewtonCache {
             coords: global,
-            factor: h,
+            qaa,
+            factor: {
+                let mut f = Mat::<f32>::zeros(na, na);
+                for c in 0..na {
+                    let (src, dst) = (h.col_as_slice(c), f.col_as_slice_mut(c));
+                    for r in c..na {
+                        dst[r] = src[r] as f32;
+                    }
+                }
+                f
+            },
         });
     }
     let mut x = vec![0.0; m];
@@ -1073,7 +1171,19 @@ fn newton_dense(
     if !x.iter().all(|v| v.is_finite()) {
         return None;
     }
-    let qx = compact_product(qw, &x);
+    // Q x in double precision, over the columns of the non-zero groups only
+    let mut qx = vec![0.0; m];
+    for &k in &groups {
+        let (a, b) = (gstart[k], gstart[k + 1]);
+        matmul(
+            MatMut::from_column_major_slice_mut(&mut qx, m, 1),
+            Accum::Add,
+            MatRef::from_column_major_slice(&qw[a * m..b * m], m, b - a),
+            MatRef::from_column_major_slice(&x[a..b], b - a, 1),
+            1.0,
+            Par::Seq,
+        );
+    }
     let f0 = compact_objective(cw, g, eta, yy, gstart, thr);
     let mut step = 1.0;
     for _ in 0..6 {
