@@ -209,6 +209,8 @@ struct State {
     eta: Vec<f64>,
     /// `g = c − Q η` (exact on the working set, refreshed elsewhere on demand).
     g: Vec<f64>,
+    /// Whether `g` is exact (to rounding) on every coordinate.
+    g_exact: bool,
 }
 
 impl GroupLasso {
@@ -407,6 +409,7 @@ impl GroupLasso {
             ws_gram: None,
             eta: vec![0.0; p],
             g: self.c.clone(),
+            g_exact: true,
         };
         let lmax = self.lambda_max(weights)?;
         let mut lam_prev = lmax;
@@ -629,6 +632,7 @@ impl GroupLasso {
         }
         if mask.is_none() {
             // g = c − Qη with faer's matvec
+            st.g_exact = true;
             st.g.copy_from_slice(&self.c);
             matmul(
                 MatMut::from_column_major_slice_mut(&mut st.g, p, 1),
@@ -702,7 +706,13 @@ impl GroupLasso {
         let dw: Vec<f64> = idx.iter().map(|&j| self.d[j]).collect();
         let thr: Vec<f64> = ws.iter().map(|&k| lam * w[k]).collect();
         let mut eta: Vec<f64> = idx.iter().map(|&j| st.eta[j]).collect();
-        let mut g = compact_gradient(qw, &cw, &eta);
+        // `g` on the working set: taken over when it is known to be exact (η is
+        // zero outside the working set), else recomputed
+        let mut g = if st.g_exact {
+            idx.iter().map(|&j| st.g[j]).collect()
+        } else {
+            compact_gradient(qw, &cw, &eta)
+        };
         let p0 = self.null_objective();
         let mut acc = Anderson::new(opts.anderson, m);
         let mut sweeps = 0;
@@ -740,9 +750,8 @@ impl GroupLasso {
                 }
             }
             sweeps += 1;
-            if let Some(ext) = acc.push(&eta) {
+            if let Some((ext, g_ext)) = acc.push(&eta, &g) {
                 // keep the extrapolated point only if it lowers the objective
-                let g_ext = compact_gradient(qw, &cw, &ext);
                 let f_ext = compact_objective(&cw, &g_ext, &ext, self.yy, &gstart, &thr);
                 let f_cur = compact_objective(&cw, &g, &eta, self.yy, &gstart, &thr);
                 if f_ext < f_cur {
@@ -788,6 +797,9 @@ impl GroupLasso {
             st.eta[j] = eta[a];
             st.g[j] = g[a];
         }
+        // exact on the working set after the confirming pass; the caller
+        // refreshes the other coordinates
+        st.g_exact = ok;
         if ws_gram.is_some() {
             st.ws_gram = ws_gram;
         }
@@ -1258,11 +1270,14 @@ fn group_update(r: &[f64], d: &[f64], thr: f64, guess: f64, out: &mut [f64]) {
 }
 
 /// Anderson extrapolation of fixed-point iterates (regularised least squares
-/// on the last `memory` differences), as used by skglm and celer.
+/// on the last `memory` differences), as used by skglm and celer. The
+/// gradients of the iterates are kept beside them: `g = c − Qη` is affine in
+/// `η` and the extrapolation weights add up to 1, so the extrapolated
+/// point's gradient is the same combination of theirs, with no pass over `Q`.
 struct Anderson {
     memory: usize,
     dim: usize,
-    iterates: Vec<Vec<f64>>,
+    iterates: Vec<(Vec<f64>, Vec<f64>)>,
 }
 
 impl Anderson {
@@ -1274,12 +1289,13 @@ impl Anderson {
         }
     }
 
-    /// Records an iterate; every `memory + 1` iterates returns an extrapolation.
-    fn push(&mut self, x: &[f64]) -> Option<Vec<f64>> {
+    /// Records an iterate and its gradient; every `memory + 1` iterates
+    /// returns an extrapolated point and its gradient.
+    fn push(&mut self, x: &[f64], g: &[f64]) -> Option<(Vec<f64>, Vec<f64>)> {
         if self.memory == 0 {
             return None;
         }
-        self.iterates.push(x.to_vec());
+        self.iterates.push((x.to_vec(), g.to_vec()));
         if self.iterates.len() < self.memory + 1 {
             return None;
         }
@@ -1287,7 +1303,11 @@ impl Anderson {
         let its = std::mem::take(&mut self.iterates);
         // differences U_i = x_{i+1} − x_i, i = 0..k
         let u: Vec<Vec<f64>> = (0..k)
-            .map(|i| (0..self.dim).map(|j| its[i + 1][j] - its[i][j]).collect())
+            .map(|i| {
+                (0..self.dim)
+                    .map(|j| its[i + 1].0[j] - its[i].0[j])
+                    .collect()
+            })
             .collect();
         let mut gram = vec![0.0; k * k];
         for a in 0..k {
@@ -1310,14 +1330,19 @@ impl Anderson {
             return None;
         }
         let mut out = vec![0.0; self.dim];
+        let mut out_g = vec![0.0; self.dim];
         for (i, zi) in z.iter().enumerate() {
             let c = zi / sum;
-            for (o, x) in out.iter_mut().zip(&its[i + 1]) {
-                *o += c * x;
+            let (x, g) = &its[i + 1];
+            for (o, v) in out.iter_mut().zip(x) {
+                *o += c * v;
+            }
+            for (o, v) in out_g.iter_mut().zip(g) {
+                *o += c * v;
             }
         }
-        if out.iter().all(|v| v.is_finite()) {
-            Some(out)
+        if out.iter().chain(&out_g).all(|v| v.is_finite()) {
+            Some((out, out_g))
         } else {
             None
         }
