@@ -52,11 +52,15 @@ pub fn cross_validate(
             let prof = train.profile(q)?;
             let problem = GroupLasso::new(&prof, factors)?;
             let fits = problem.fit_path(weights, lambdas, opts, None)?;
-            let mut mse = Vec::with_capacity(fits.len());
-            for fit in &fits {
-                let c = prof.full_coef(&fit.coef);
-                mse.push(held.residual_sum_of_squares(&c)? / held.n.max(1) as f64);
-            }
+            let full: Vec<Vec<f64>> = fits.iter().map(|f| prof.full_coef(&f.coef)).collect();
+            let d = full.first().map_or(0, Vec::len);
+            let coefs = Mat::from_fn(d, full.len(), |i, t| full[t][i]);
+            let nh = held.n.max(1) as f64;
+            let mse = held
+                .residual_sums_of_squares(coefs.as_ref())?
+                .into_iter()
+                .map(|r| r / nh)
+                .collect();
             Ok((mse, fits))
         })
         .collect();

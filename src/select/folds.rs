@@ -127,11 +127,18 @@ impl FoldGrams {
         };
         let total = sum_over(&(0..n));
         let held: Vec<Gram> = folds.iter().map(|f| sum_over(&f.held)).collect();
+        // training = total − the excluded segments, subtracted one by one
+        // (no temporary sum of them)
         let train: Vec<Gram> = folds
             .iter()
             .map(|f| {
+                let ex = f.excluded();
                 let mut t = total.clone();
-                t.accumulate(&sum_over(&f.excluded()), -1.0);
+                for (s, g) in segs.iter().zip(&grams) {
+                    if s.start >= ex.start && s.end <= ex.end {
+                        t.accumulate(g, -1.0);
+                    }
+                }
                 t
             })
             .collect();

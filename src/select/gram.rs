@@ -200,6 +200,41 @@ impl Gram {
         })
     }
 
+    /// Residual sums of squares of several full coefficient vectors at once,
+    /// the columns of `coefs` (`dim × T`): as [`Self::residual_sum_of_squares`],
+    /// with `ZᵀZ C` formed by one matrix product (sequential, so the result
+    /// does not depend on the thread count).
+    pub fn residual_sums_of_squares(&self, coefs: MatRef<'_, f64>) -> Result<Vec<f64>> {
+        let d = self.dim();
+        if coefs.nrows() != d {
+            return Err(Error::Argument(format!(
+                "{} coefficients for a Gram of dimension {d}",
+                coefs.nrows()
+            )));
+        }
+        let t = coefs.ncols();
+        let mut zzc = Mat::<f64>::zeros(d, t);
+        faer::linalg::matmul::matmul(
+            zzc.as_mut(),
+            Accum::Replace,
+            self.zz.as_ref(),
+            coefs,
+            1.0,
+            Par::Seq,
+        );
+        Ok((0..t)
+            .map(|k| {
+                let (mut lin, mut quad) = (0.0, 0.0);
+                for i in 0..d {
+                    let c = coefs[(i, k)];
+                    lin += self.zy[i] * c;
+                    quad += zzc[(i, k)] * c;
+                }
+                (self.yy - 2.0 * lin + quad).max(0.0)
+            })
+            .collect())
+    }
+
     /// Residual sum of squares `‖y − Z c‖²` of full coefficients `c` (baseline
     /// first) on the rows of this Gram: `yᵀy − 2cᵀZᵀy + cᵀZᵀZc`.
     pub fn residual_sum_of_squares(&self, coef: &[f64]) -> Result<f64> {

@@ -86,6 +86,7 @@ use faer::{Accum, Mat, MatMut, MatRef, Par, Side};
 
 use super::gram::ProfiledGram;
 use super::penalty::inverse_transpose_lower;
+use super::symv::symv_lower;
 use crate::{Error, Result};
 
 /// Solver tolerances and limits; see the module docs for their meaning.
@@ -688,11 +689,14 @@ impl GroupLasso {
         // otherwise a compact copy kept while the working set stays the same
         let full = m == p;
         if !full && st.ws_gram.as_ref().is_none_or(|(w, _)| w != ws) {
-            let mut qc = vec![0.0; m * m];
-            for (a, &ja) in idx.iter().enumerate() {
+            // column by column, into the previous copy's allocation
+            let mut qc = st.ws_gram.take().map(|(_, v)| v).unwrap_or_default();
+            qc.clear();
+            qc.reserve(m * m);
+            for &ja in &idx {
                 let col = &self.q[ja * p..(ja + 1) * p];
-                for (b, &jb) in idx.iter().enumerate() {
-                    qc[a * m + b] = col[jb];
+                for &k in ws {
+                    qc.extend_from_slice(&col[self.group_range(k)]);
                 }
             }
             st.ws_gram = Some((ws.to_vec(), qc));
@@ -961,10 +965,13 @@ fn compact_certificate(
 #[derive(Debug, Clone)]
 struct NewtonCache {
     coords: Vec<usize>,
-    /// `Q_AA`, single precision, column-major.
-    qaa: Mat<f32>,
-    /// Lower Cholesky factor of the Hessian at the last factorisation.
-    factor: Mat<f32>,
+    /// Lower triangle of `Q_AA`, single precision, column-major `na × na`.
+    qaa: Vec<f32>,
+    /// Lower Cholesky factor of the Hessian at the last factorisation,
+    /// column-major `na × na` (only the lower triangle is meaningful).
+    factor: Vec<f32>,
+    /// Double-precision work space of the factorisation (kept for reuse).
+    scratch: Vec<f64>,
 }
 
 /// Iteration limit of [`pcg`].
@@ -1017,6 +1024,55 @@ fn pcg(
         }
     }
     None
+}
+
+/// The Newton direction by [`pcg`] with the single-precision `Q_AA` and
+/// preconditioner factor of `c` (`blocks`: per non-zero group its range in
+/// `coords`, `α_k` and `‖η_k‖`).
+fn cached_direction(
+    c: &NewtonCache,
+    blocks: &[(usize, usize, f64, f64)],
+    coords: &[usize],
+    eta: &[f64],
+    rhs: &[f64],
+) -> Option<Vec<f64>> {
+    use faer::dyn_stack::{MemBuffer, MemStack};
+    use faer::linalg::cholesky::llt;
+    let na = coords.len();
+    let mut mem = MemBuffer::new(llt::solve::solve_in_place_scratch::<f32>(na, 1, Par::Seq));
+    let stack = MemStack::new(&mut mem);
+    let v32 = std::cell::RefCell::new(vec![0.0f32; na]);
+    let o32 = std::cell::RefCell::new(vec![0.0f32; na]);
+    // H v = Q_AA v + blockdiag(α_k (I − u_k u_kᵀ)) v, without forming H
+    let hv = |v: &[f64], out: &mut [f64]| {
+        let (mut v32, mut o32) = (v32.borrow_mut(), o32.borrow_mut());
+        for (a, b) in v32.iter_mut().zip(v) {
+            *a = *b as f32;
+        }
+        symv_lower(&c.qaa, na, &v32, &mut o32);
+        for &(s, e, alpha, n) in blocks {
+            let uv: f64 = (s..e).map(|r| eta[coords[r]] / n * v[r]).sum();
+            for r in s..e {
+                out[r] = o32[r] as f64 + alpha * (v[r] - eta[coords[r]] / n * uv);
+            }
+        }
+    };
+    let mut z32 = vec![0.0f32; na];
+    let precond = |r: &[f64], z: &mut [f64]| {
+        for (a, b) in z32.iter_mut().zip(r) {
+            *a = *b as f32;
+        }
+        llt::solve::solve_in_place(
+            MatRef::from_column_major_slice(&c.factor, na, na),
+            MatMut::from_column_major_slice_mut(&mut z32, na, 1),
+            Par::Seq,
+            stack,
+        );
+        for (a, b) in z.iter_mut().zip(&z32) {
+            *a = *b as f64;
+        }
+    };
+    pcg(hv, precond, rhs)
 }
 
 /// A Newton step on the non-zero groups, where the objective is smooth.
@@ -1080,50 +1136,66 @@ fn newton_dense(
     let global: Vec<usize> = coords.iter().map(|&i| idx[i]).collect();
     let mut solved = false;
     if let Some(c) = cache.as_ref().filter(|c| c.coords == global) {
-        let mut mem = MemBuffer::new(llt::solve::solve_in_place_scratch::<f32>(na, 1, Par::Seq));
-        let stack = MemStack::new(&mut mem);
-        let v32 = std::cell::RefCell::new(vec![0.0f32; na]);
-        let o32 = std::cell::RefCell::new(vec![0.0f32; na]);
-        // H v = Q_AA v + blockdiag(α_k (I − u_k u_kᵀ)) v, without forming H
-        let hv = |v: &[f64], out: &mut [f64]| {
-            let (mut v32, mut o32) = (v32.borrow_mut(), o32.borrow_mut());
-            for (a, b) in v32.iter_mut().zip(v) {
-                *a = *b as f32;
-            }
-            matmul(
-                MatMut::from_column_major_slice_mut(&mut o32, na, 1),
-                Accum::Replace,
-                c.qaa.as_ref(),
-                MatRef::from_column_major_slice(&v32, na, 1),
-                1.0f32,
-                Par::Seq,
-            );
-            for &(s, e, alpha, n) in &blocks {
-                let uv: f64 = (s..e).map(|r| eta[coords[r]] / n * v[r]).sum();
-                for r in s..e {
-                    out[r] = o32[r] as f64 + alpha * (v[r] - eta[coords[r]] / n * uv);
-                }
-            }
-        };
-        let mut z32 = vec![0.0f32; na];
-        let precond = |r: &[f64], z: &mut [f64]| {
-            for (a, b) in z32.iter_mut().zip(r) {
-                *a = *b as f32;
-            }
-            llt::solve::solve_in_place(
-                c.factor.as_ref(),
-                MatMut::from_column_major_slice_mut(&mut z32, na, 1),
-                Par::Seq,
-                stack,
-            );
-            for (a, b) in z.iter_mut().zip(&z32) {
-                *a = *b as f64;
-            }
-        };
-        if let Some(sol) = pcg(hv, precond, rhs.col_as_slice(0)) {
+        if let Some(sol) = cached_direction(c, &blocks, &coords, eta, rhs.col_as_slice(0)) {
             rhs.col_as_slice_mut(0).copy_from_slice(&sol);
             solved = true;
         }
+    }
+    if !solved {
+        // A fresh factorisation in single precision (half the flops' cost and
+        // memory of double), checked by CG like a cached one.
+        let (hbuf, mut qaa, mut factor) = match cache.take() {
+            Some(c) => (c.scratch, c.qaa, c.factor),
+            None => Default::default(),
+        };
+        for b in [&mut qaa, &mut factor] {
+            b.resize(na * na, 0.0);
+        }
+        for (c, &jc) in coords.iter().enumerate() {
+            let src = &qw[jc * m..(jc + 1) * m];
+            let fc = &mut factor[c * na..(c + 1) * na];
+            for (r, &jr) in coords.iter().enumerate().skip(c) {
+                fc[r] = src[jr] as f32;
+            }
+            qaa[c * na + c..(c + 1) * na].copy_from_slice(&fc[c..]);
+        }
+        for &(s, e, alpha, n) in &blocks {
+            for c in s..e {
+                let uc = eta[coords[c]] / n;
+                for r in c..e {
+                    let ur = eta[coords[r]] / n;
+                    factor[c * na + r] +=
+                        (alpha * (if r == c { 1.0 } else { 0.0 } - ur * uc)) as f32;
+                }
+            }
+        }
+        let mut mem = MemBuffer::new(llt::factor::cholesky_in_place_scratch::<f32>(
+            na,
+            Par::Seq,
+            Default::default(),
+        ));
+        let ok = llt::factor::cholesky_in_place(
+            MatMut::from_column_major_slice_mut(&mut factor, na, na),
+            Default::default(),
+            Par::Seq,
+            MemStack::new(&mut mem),
+            Default::default(),
+        )
+        .is_ok()
+            && factor.iter().step_by(na + 1).all(|v| v.is_finite());
+        let c = NewtonCache {
+            coords: global.clone(),
+            qaa,
+            factor,
+            scratch: hbuf,
+        };
+        if ok {
+            if let Some(sol) = cached_direction(&c, &blocks, &coords, eta, rhs.col_as_slice(0)) {
+                rhs.col_as_slice_mut(0).copy_from_slice(&sol);
+                solved = true;
+            }
+        }
+        *cache = Some(c);
     }
     if !solved {
         let mut mem = MemBuffer::new(llt::factor::cholesky_in_place_scratch::<f64>(
@@ -1132,17 +1204,28 @@ fn newton_dense(
             Default::default(),
         ));
         let stack = MemStack::new(&mut mem);
+        // the buffers of the previous cache are reused (no fresh pages to
+        // fault in and zero); every entry read below is written first
+        let (mut hbuf, mut qaa, mut factor) = match cache.take() {
+            Some(c) => (c.scratch, c.qaa, c.factor),
+            None => Default::default(),
+        };
+        for b in [&mut qaa, &mut factor] {
+            b.resize(na * na, 0.0);
+        }
+        hbuf.resize(na * na, 0.0);
         // gather Q_AA column by column; keep a single-precision copy for CG
-        let mut h = Mat::<f64>::zeros(na, na);
-        let mut qaa = Mat::<f32>::zeros(na, na);
         for (c, &jc) in coords.iter().enumerate() {
             let src = &qw[jc * m..(jc + 1) * m];
-            let (hc, qc) = (h.col_as_slice_mut(c), qaa.col_as_slice_mut(c));
+            let hc = &mut hbuf[c * na..(c + 1) * na];
             for (r, &jr) in coords.iter().enumerate() {
                 hc[r] = src[jr];
-                qc[r] = src[jr] as f32;
+            }
+            for (q, h) in qaa[c * na + c..(c + 1) * na].iter_mut().zip(&hc[c..]) {
+                *q = *h as f32;
             }
         }
+        let mut h = MatMut::from_column_major_slice_mut(&mut hbuf, na, na);
         for &(s, e, alpha, n) in &blocks {
             for c in s..e {
                 let uc = eta[coords[c]] / n;
@@ -1161,19 +1244,20 @@ fn newton_dense(
         )
         .ok()?;
         llt::solve::solve_in_place(h.as_ref(), rhs.as_mut(), Par::Seq, stack);
+        for c in 0..na {
+            let (src, dst) = (
+                &hbuf[c * na..(c + 1) * na],
+                &mut factor[c * na..(c + 1) * na],
+            );
+            for r in c..na {
+                dst[r] = src[r] as f32;
+            }
+        }
         *cache = Some(NewtonCache {
             coords: global,
             qaa,
-            factor: {
-                let mut f = Mat::<f32>::zeros(na, na);
-                for c in 0..na {
-                    let (src, dst) = (h.col_as_slice(c), f.col_as_slice_mut(c));
-                    for r in c..na {
-                        dst[r] = src[r] as f32;
-                    }
-                }
-                f
-            },
+            factor,
+            scratch: hbuf,
         });
     }
     let mut x = vec![0.0; m];
