@@ -108,12 +108,13 @@ impl Gram {
 
     /// Adds `sign · other` in place.
     pub fn accumulate(&mut self, other: &Gram, sign: f64) {
-        let d = self.dim();
-        for j in 0..d {
-            let (a, b) = (self.zz.col_as_slice_mut(j), other.zz.col_as_slice(j));
-            for (x, y) in a.iter_mut().zip(b) {
-                *x += sign * y;
-            }
+        // faer's element-wise kernels (SIMD)
+        if sign == 1.0 {
+            self.zz += &other.zz;
+        } else if sign == -1.0 {
+            self.zz -= &other.zz;
+        } else {
+            self.zz += faer::Scale(sign) * &other.zz;
         }
         for (x, y) in self.zy.iter_mut().zip(&other.zy) {
             *x += sign * y;

@@ -59,7 +59,7 @@ pub mod penalty;
 pub mod solver;
 pub mod stability;
 pub mod stages;
-mod symv;
+pub mod symv;
 pub mod tune;
 
 pub use basis::BSplineBasis;

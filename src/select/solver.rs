@@ -86,7 +86,7 @@ use faer::{Accum, Mat, MatMut, MatRef, Par, Side};
 
 use super::gram::ProfiledGram;
 use super::penalty::inverse_transpose_lower;
-use super::symv::symv_lower;
+use super::symv::{cholesky_solve_lower, symv_lower};
 use crate::{Error, Result};
 
 /// Solver tolerances and limits; see the module docs for their meaning.
@@ -202,6 +202,7 @@ pub struct GroupLasso {
 }
 
 /// Working memory of the solver at one λ.
+#[derive(Debug)]
 struct State {
     /// Cholesky factor of a recent Newton Hessian, reused as a preconditioner.
     cache: Option<NewtonCache>,
@@ -398,58 +399,9 @@ impl GroupLasso {
         opts: &SolverOptions,
         warm: Option<&[f64]>,
     ) -> Result<Vec<Fit>> {
-        self.check_weights(weights)?;
-        if let Some(l) = lambdas.iter().find(|l| !(l.is_finite() && **l > 0.0)) {
-            return Err(Error::Argument(format!(
-                "λ must be positive and finite, got {l}"
-            )));
-        }
-        let p = self.dim();
-        let mut st = State {
-            cache: None,
-            ws_gram: None,
-            eta: vec![0.0; p],
-            g: self.c.clone(),
-            g_exact: true,
-        };
-        let lmax = self.lambda_max(weights)?;
-        let mut lam_prev = lmax;
-        if let Some(th) = warm {
-            if th.len() != p {
-                return Err(Error::Argument(format!(
-                    "warm start has {} values, need {p}",
-                    th.len()
-                )));
-            }
-            for (k, wk) in weights.iter().enumerate() {
-                if !wk.is_finite() {
-                    continue;
-                }
-                let r = self.group_range(k);
-                let v = &self.to_theta[k];
-                for i in 0..r.len() {
-                    let s: f64 = (0..r.len()).map(|j| v[(j, i)] * th[r.start + j]).sum();
-                    st.eta[r.start + i] = if self.d[r.start + i] > 0.0 { s } else { 0.0 };
-                }
-            }
-            self.refresh_gradient(&mut st, None);
-            lam_prev = lambdas.first().copied().unwrap_or(lmax);
-        }
-        let mut fits = Vec::with_capacity(lambdas.len());
-        // (η, g, λ) of the solutions before the current start (latest last),
-        // for the predictor
-        let mut history: Vec<(Vec<f64>, Vec<f64>, f64)> = Vec::new();
-        for &lam in lambdas {
-            let before = (st.eta.clone(), st.g.clone(), lam_prev);
-            let fit = self.solve_one(&mut st, weights, lam, lam_prev, &history, opts);
-            fits.push(fit);
-            history.push(before);
-            if history.len() > 2 {
-                history.remove(0);
-            }
-            lam_prev = lam;
-        }
-        Ok(fits)
+        let mut run = PathRun::new(self, weights, lambdas, opts, warm)?;
+        run.advance(self, lambdas.len());
+        Ok(run.into_fits())
     }
 
     /// Solves at one λ starting from `st` (which holds the solution at `lam_prev`).
@@ -875,6 +827,113 @@ impl GroupLasso {
     }
 }
 
+/// A λ path that can be solved piece by piece (and handed from one thread
+/// to another between pieces); the fits are the same as those of
+/// [`GroupLasso::fit_path`], however the path is cut.
+#[derive(Debug)]
+pub struct PathRun {
+    weights: Vec<f64>,
+    lambdas: Vec<f64>,
+    opts: SolverOptions,
+    st: State,
+    /// (η, g, λ) of the solutions before the current start (latest last),
+    /// for the predictor.
+    history: Vec<(Vec<f64>, Vec<f64>, f64)>,
+    lam_prev: f64,
+    fits: Vec<Fit>,
+}
+
+impl PathRun {
+    /// Starts a path of `problem` at `lambdas` (see [`GroupLasso::fit_path`]).
+    pub fn new(
+        problem: &GroupLasso,
+        weights: &[f64],
+        lambdas: &[f64],
+        opts: &SolverOptions,
+        warm: Option<&[f64]>,
+    ) -> Result<Self> {
+        problem.check_weights(weights)?;
+        if let Some(l) = lambdas.iter().find(|l| !(l.is_finite() && **l > 0.0)) {
+            return Err(Error::Argument(format!(
+                "λ must be positive and finite, got {l}"
+            )));
+        }
+        let p = problem.dim();
+        let mut st = State {
+            cache: None,
+            ws_gram: None,
+            eta: vec![0.0; p],
+            g: problem.c.clone(),
+            g_exact: true,
+        };
+        let lmax = problem.lambda_max(weights)?;
+        let mut lam_prev = lmax;
+        if let Some(th) = warm {
+            if th.len() != p {
+                return Err(Error::Argument(format!(
+                    "warm start has {} values, need {p}",
+                    th.len()
+                )));
+            }
+            for (k, wk) in weights.iter().enumerate() {
+                if !wk.is_finite() {
+                    continue;
+                }
+                let r = problem.group_range(k);
+                let v = &problem.to_theta[k];
+                for i in 0..r.len() {
+                    let s: f64 = (0..r.len()).map(|j| v[(j, i)] * th[r.start + j]).sum();
+                    st.eta[r.start + i] = if problem.d[r.start + i] > 0.0 { s } else { 0.0 };
+                }
+            }
+            problem.refresh_gradient(&mut st, None);
+            lam_prev = lambdas.first().copied().unwrap_or(lmax);
+        }
+        Ok(PathRun {
+            weights: weights.to_vec(),
+            lambdas: lambdas.to_vec(),
+            opts: *opts,
+            st,
+            history: Vec::new(),
+            lam_prev,
+            fits: Vec::with_capacity(lambdas.len()),
+        })
+    }
+
+    /// Solves the path up to (not including) λ index `until` (`problem` must
+    /// be the one given to [`PathRun::new`]).
+    pub fn advance(&mut self, problem: &GroupLasso, until: usize) {
+        while self.fits.len() < until.min(self.lambdas.len()) {
+            let lam = self.lambdas[self.fits.len()];
+            let before = (self.st.eta.clone(), self.st.g.clone(), self.lam_prev);
+            let fit = problem.solve_one(
+                &mut self.st,
+                &self.weights,
+                lam,
+                self.lam_prev,
+                &self.history,
+                &self.opts,
+            );
+            self.fits.push(fit);
+            self.history.push(before);
+            if self.history.len() > 2 {
+                self.history.remove(0);
+            }
+            self.lam_prev = lam;
+        }
+    }
+
+    /// Number of λ values solved so far.
+    pub fn solved(&self) -> usize {
+        self.fits.len()
+    }
+
+    /// The fits solved so far, in the order of the λ values.
+    pub fn into_fits(self) -> Vec<Fit> {
+        self.fits
+    }
+}
+
 /// Euclidean norm.
 fn norm(v: &[f64]) -> f64 {
     v.iter().map(|x| x * x).sum::<f64>().sqrt()
@@ -1036,11 +1095,7 @@ fn cached_direction(
     eta: &[f64],
     rhs: &[f64],
 ) -> Option<Vec<f64>> {
-    use faer::dyn_stack::{MemBuffer, MemStack};
-    use faer::linalg::cholesky::llt;
     let na = coords.len();
-    let mut mem = MemBuffer::new(llt::solve::solve_in_place_scratch::<f32>(na, 1, Par::Seq));
-    let stack = MemStack::new(&mut mem);
     let v32 = std::cell::RefCell::new(vec![0.0f32; na]);
     let o32 = std::cell::RefCell::new(vec![0.0f32; na]);
     // H v = Q_AA v + blockdiag(α_k (I − u_k u_kᵀ)) v, without forming H
@@ -1062,12 +1117,7 @@ fn cached_direction(
         for (a, b) in z32.iter_mut().zip(r) {
             *a = *b as f32;
         }
-        llt::solve::solve_in_place(
-            MatRef::from_column_major_slice(&c.factor, na, na),
-            MatMut::from_column_major_slice_mut(&mut z32, na, 1),
-            Par::Seq,
-            stack,
-        );
+        cholesky_solve_lower(&c.factor, na, &mut z32);
         for (a, b) in z.iter_mut().zip(&z32) {
             *a = *b as f64;
         }
@@ -1081,13 +1131,16 @@ fn cached_direction(
 /// those groups is `H = Q_AA + blockdiag(α_k (I − u_k u_kᵀ))` and the gradient
 /// is `−g_A + α ∘ η_A`. The Newton system is solved by preconditioned
 /// conjugate gradients ([`pcg`]) with the Cholesky factor of an earlier
-/// Hessian on the same coordinates, or, when there is none or CG does not
-/// reach the forcing tolerance, by a fresh double-precision Cholesky
-/// factorisation (faer, sequential), which is then kept.
+/// Hessian on the same coordinates; when there is none or CG does not reach
+/// the forcing tolerance, the Hessian is factorised afresh in single precision
+/// (faer, sequential) and CG runs again with that factor (it then needs one
+/// or two iterations); only if that fails too is it factorised in double
+/// precision and solved directly. The last factor is kept.
 ///
-/// Inside CG, `Q_AA v` and the preconditioner solve run in single precision
-/// (half the memory traffic and twice the SIMD width of double; these two
-/// matrix passes are most of the solver's time). That is safe because CG only
+/// Inside CG, `Q_AA v` (a symmetric product over the stored lower triangle)
+/// and the preconditioner solve run in single precision ([`super::symv`]:
+/// half the memory traffic and twice the SIMD width of double; these matrix
+/// passes are most of the solver's time). That is safe because CG only
 /// has to meet a relative residual of `PCG_FORCING` = 1e-2, while a single-
 /// precision product errs by about `√p · 6e-8` relative, and because the
 /// direction is checked in double precision afterwards: the gradient change
@@ -1323,13 +1376,14 @@ fn group_update(r: &[f64], d: &[f64], thr: f64, guess: f64, out: &mut [f64]) {
                 dphi -= 2.0 * di * t / den;
             }
         }
-        let f = phi.powf(-0.5) - 1.0;
+        let inv_sqrt = 1.0 / phi.sqrt(); // φ^{-1/2}
+        let f = inv_sqrt - 1.0;
         if f > 0.0 {
             hi = hi.min(rho);
         } else {
             lo = lo.max(rho);
         }
-        let fp = -0.5 * phi.powf(-1.5) * dphi;
+        let fp = -0.5 * inv_sqrt / phi * dphi;
         let mut next = rho - f / fp;
         if !next.is_finite() || next <= lo || next >= hi {
             next = if lo > 0.0 && hi / lo > 4.0 {
