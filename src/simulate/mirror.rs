@@ -2,8 +2,10 @@
 //!
 //! The intact hand shows the posture that the missing hand was commanded to at
 //! EMG-clock time t at EMG-clock time u(t) = t + lag(t), with
-//! lag(t) = mean + drift·(t/T − ½) + wobble·sin(2πt/P) + jitter(t), the jitter
-//! drawn per block and interpolated between block centres by raised cosines.
+//! lag(t) = mean + drift·(t/T − ½) + wobble·sin(2πt/P) + direction·s(t) + jitter(t),
+//! the jitter drawn per block and interpolated between block centres by raised
+//! cosines, and s(t) the smoothed direction of the intended movement
+//! ([`direction`]).
 //! The glove samples its own clock τ, with EMG-clock time τ + offset, so the
 //! true intact-clock time of EMG time t is u(t) − offset.
 
@@ -27,6 +29,11 @@ pub fn lag(sc: &Scenario, mv: &Movement, rng: &mut ChaCha8Rng) -> Vec<f64> {
             (0.5 * (b.start_s + b.end_s), l.block_jitter_s * j)
         })
         .collect();
+    let dir = if l.direction_s != 0.0 {
+        direction(sc, mv)
+    } else {
+        vec![0.0; n]
+    };
     (0..n)
         .map(|i| {
             let t = i as f64 / fs;
@@ -41,7 +48,47 @@ pub fn lag(sc: &Scenario, mv: &Movement, rng: &mut ChaCha8Rng) -> Vec<f64> {
             l.mean_s
                 + l.drift_s * (t / total - 0.5)
                 + l.wobble_s * (2.0 * PI * t / l.wobble_period_s).sin()
+                + l.direction_s * dir[i]
                 + jitter
+        })
+        .collect()
+}
+
+/// Width of the moving average that smooths the movement direction, s.
+pub const DIRECTION_SMOOTH_S: f64 = 0.4;
+
+/// Speed, in ranges per second, at which the direction reaches tanh(1).
+const DIRECTION_SPEED: f64 = 0.1;
+
+/// The smoothed direction of the intended movement at every EMG sample:
+/// `s_raw = clamp(Σ_d tanh(q̇_d / (range_d · 0.1/s)), −1, 1)` over the DoFs,
+/// then a centred moving average over [`DIRECTION_SMOOTH_S`]. A moving
+/// average of a signal bounded by 1 changes by at most `2/width` per second,
+/// which is the bound the scenario check uses.
+pub fn direction(sc: &Scenario, mv: &Movement) -> Vec<f64> {
+    let fs = mv.rate_hz;
+    let n = mv.q.first().map_or(0, Vec::len);
+    let mut raw = vec![0.0; n];
+    for (d, q) in sc.dof.iter().zip(&mv.q) {
+        let range = (d.range_deg[1] - d.range_deg[0]).abs().max(1e-9);
+        for (i, r) in raw.iter_mut().enumerate() {
+            let (a, b) = (i.saturating_sub(1), (i + 1).min(n - 1));
+            if b > a {
+                let v = (q[b] - q[a]) * fs / (b - a) as f64;
+                *r += (v / (range * DIRECTION_SPEED)).tanh();
+            }
+        }
+    }
+    raw.iter_mut().for_each(|v| *v = v.clamp(-1.0, 1.0));
+    let half = ((0.5 * DIRECTION_SMOOTH_S * fs).round() as usize).max(1);
+    let mut prefix = vec![0.0; n + 1];
+    for (i, v) in raw.iter().enumerate() {
+        prefix[i + 1] = prefix[i] + v;
+    }
+    (0..n)
+        .map(|i| {
+            let (a, b) = (i.saturating_sub(half), (i + half + 1).min(n));
+            (prefix[b] - prefix[a]) / (2 * half + 1) as f64
         })
         .collect()
 }

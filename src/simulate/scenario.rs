@@ -127,8 +127,12 @@ impl Default for IntactSpec {
 /// The mirroring lag: EMG-clock time at which the intact hand shows a posture
 /// minus the time the missing hand was commanded to it.
 ///
-/// lag(t) = mean + drift·(t/T − ½) + wobble·sin(2πt/wobble_period) + per-block
-/// jitter (smoothly interpolated between block centres).
+/// lag(t) = mean + drift·(t/T − ½) + wobble·sin(2πt/wobble_period) +
+/// direction·s(t) + per-block jitter (smoothly interpolated between block
+/// centres), where s(t) ∈ [−1, 1] is the smoothed direction of the intended
+/// movement (+1 while it flexes, −1 while it extends, 0 while still; see
+/// `mirror::direction`), so that the lag changes within every movement cycle
+/// and is steady through holds.
 #[derive(Debug, Clone, Deserialize)]
 #[serde(deny_unknown_fields, default)]
 pub struct LagSpec {
@@ -140,6 +144,9 @@ pub struct LagSpec {
     pub wobble_s: f64,
     /// Period of the within-cycle variation, s.
     pub wobble_period_s: f64,
+    /// Extra lag while the intended movement goes in the positive direction
+    /// (and less by as much in the negative one), s.
+    pub direction_s: f64,
     /// Standard deviation of the per-block lag jitter, s.
     pub block_jitter_s: f64,
 }
@@ -151,6 +158,7 @@ impl Default for LagSpec {
             drift_s: 0.06,
             wobble_s: 0.03,
             wobble_period_s: 3.0,
+            direction_s: 0.0,
             block_jitter_s: 0.02,
         }
     }
@@ -462,6 +470,7 @@ impl Scenario {
         let lag_slope = self.lag.drift_s.abs() / self.total_duration().max(1.0)
             + 2.0 * std::f64::consts::PI * self.lag.wobble_s.abs()
                 / self.lag.wobble_period_s.max(1e-3)
+            + 2.0 * self.lag.direction_s.abs() / super::mirror::DIRECTION_SMOOTH_S
             + 4.0 * self.lag.block_jitter_s.abs() / 5.0;
         if lag_slope > 0.5 {
             return Err(bad(

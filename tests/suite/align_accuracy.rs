@@ -3,11 +3,16 @@
 //!
 //! Issue target: over all rows of non-rest blocks (holds included), the
 //! median of |intact_time_s − true intact time| at most 15 ms and the 90th
-//! percentile at most 35 ms, in each of three scenarios: a drifting lag; a lag
-//! varying within cycles; a clock offset with the intact hand leading and
-//! other EMG and glove rates. The drift and offset scenarios meet it; the
-//! within-cycle scenario does not, so its full-target test is ignored and its
-//! figures are pinned instead. Why it is not met, as measured:
+//! percentile at most 35 ms, in each of at least three scenarios. Four are
+//! here: a drifting lag; a lag varying within cycles (a ±60 ms, 2 s wobble);
+//! a clock offset with the intact hand leading and other EMG and glove rates;
+//! and a lag that depends on the direction of movement (0.1 s longer while
+//! flexing than while extending, so it changes at every reversal and is
+//! steady through holds; EMG 1000 Hz, glove 90 Hz). The drift and offset
+//! scenarios meet it; the wobble and direction scenarios do not, so their
+//! full-target tests are ignored and their figures are pinned instead (see
+//! the direction test for its figures). Why the wobble is not met, as
+//! measured:
 //!
 //! - Holds and passive returns carry no timing at all (both sides are still,
 //!   or the EMG is silent), and the ±60 ms, 2 s wobble goes on through them.
@@ -175,4 +180,26 @@ fn lag_varying_within_cycles() {
 fn full_target_lag_varying_within_cycles() {
     let (all, _, _, _) = figures("cycle");
     assert_full_target("cycle", all);
+}
+
+#[test]
+fn lag_depending_on_movement_direction() {
+    let (all, moving, hold, al) = figures("direction");
+    verdicts("direction", &al);
+    // Measured: all 35.0 / 66.5 ms; paced+free 33.0 / 61.5 ms; hold-release
+    // 41.7 / 77.7 ms; paced alone 39.2 / 63.2 ms. DTW alone gives a lag that is
+    // nearly constant within each paced block (its side-step penalty does not
+    // pay for the ±50 ms switch at every reversal) and the refinement, which
+    // starts from it, follows about half of the swing. The same session
+    // without the direction term: all 9.6 / 38.9 ms, paced 8.5 / 22.2 ms.
+    assert!(moving.0 <= 39.5 && moving.1 <= 74.0, "{moving:?}");
+    assert!(all.0 <= 42.0 && all.1 <= 80.0, "{all:?}");
+    assert!(hold.0 <= 50.0 && hold.1 <= 93.0, "{hold:?}");
+}
+
+#[test]
+#[ignore = "not met (35.0 / 66.5 ms): the lag that switches by 0.1 s at every reversal is followed only in part; see lag_depending_on_movement_direction"]
+fn full_target_lag_depending_on_movement_direction() {
+    let (all, _, _, _) = figures("direction");
+    assert_full_target("direction", all);
 }

@@ -230,3 +230,54 @@ fn scenario_errors_name_the_line() {
     let e = Scenario::from_toml(std::path::Path::new("x.toml"), &bad).unwrap_err();
     assert_eq!(e.field.as_deref(), Some("fault.site"));
 }
+
+#[test]
+fn direction_term_lengthens_the_lag_while_flexing() {
+    // scenario with lag.direction_s = 0.05: the lag is 0.1 s longer while
+    // the intended movement flexes than while it extends
+    let sc = Scenario::from_file(std::path::Path::new(
+        "tests/fixtures/align/scenario-direction.toml",
+    ))
+    .unwrap();
+    let sim = simulate::simulate(&sc).unwrap();
+    let fs = sc.emg.rate_hz;
+    let speeds: Vec<Vec<f64>> = sim
+        .movement
+        .q
+        .iter()
+        .zip(&sc.dof)
+        .map(|(q, d)| {
+            let range = d.range_deg[1] - d.range_deg[0];
+            simulate::movement::derivative(q, fs)
+                .iter()
+                .map(|v| v / range)
+                .collect()
+        })
+        .collect();
+    let (mut flex, mut ext) = (Vec::new(), Vec::new());
+    for i in 0..speeds[0].len() {
+        let t = i as f64 / fs;
+        let lag = sim.truth.map.at(t) - t - sc.intact.offset_s;
+        // clearly moving one way (0.3 ranges/s) and no DoF the other way
+        let up = speeds.iter().any(|v| v[i] > 0.3) && speeds.iter().all(|v| v[i] > -0.05);
+        let down = speeds.iter().any(|v| v[i] < -0.3) && speeds.iter().all(|v| v[i] < 0.05);
+        if up {
+            flex.push(lag);
+        } else if down {
+            ext.push(lag);
+        }
+    }
+    let mean = |v: &[f64]| v.iter().sum::<f64>() / v.len() as f64;
+    let diff = mean(&flex) - mean(&ext);
+    eprintln!(
+        "lag flexing {:.3} s ({} samples), extending {:.3} s ({}), difference {diff:.3} s",
+        mean(&flex),
+        flex.len(),
+        mean(&ext),
+        ext.len()
+    );
+    // 2 × 0.05 s, less what the 0.4 s smoothing of the direction takes off
+    // near reversals; wobble, drift and jitter average out over the cycles
+    assert!(flex.len() > 1000 && ext.len() > 1000);
+    assert!((0.07..=0.11).contains(&diff), "difference {diff}");
+}
