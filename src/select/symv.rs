@@ -18,6 +18,17 @@ pub fn symv_lower(lower: &[f32], n: usize, x: &[f32], y: &mut [f32]) {
     Arch::new().dispatch(Symv { lower, n, x, y });
 }
 
+/// Columns `j..j + 4` of the stored lower triangle below their 4 × 4
+/// diagonal block (rows `j + 4..n`), each split into whole SIMD vectors and
+/// a scalar tail.
+#[inline(always)]
+#[allow(clippy::type_complexity)]
+fn below_block<S: Simd>(lower: &[f32], n: usize, j: usize) -> ([&[S::f32s]; 4], [&[f32]; 4]) {
+    let split: [(&[S::f32s], &[f32]); 4] =
+        std::array::from_fn(|c| S::as_simd_f32s(&lower[(j + c) * n + j + 4..(j + c + 1) * n]));
+    (split.map(|p| p.0), split.map(|p| p.1))
+}
+
 struct Symv<'a> {
     lower: &'a [f32],
     n: usize,
@@ -38,12 +49,7 @@ impl WithSimd for Symv<'_> {
         let mut j = 0;
         while j + 4 <= n {
             let r0 = j + 4;
-            let cols: [&[f32]; 4] =
-                std::array::from_fn(|c| &lower[(j + c) * n + r0..(j + c + 1) * n]);
-            let (c0, t0) = S::as_simd_f32s(cols[0]);
-            let (c1, t1) = S::as_simd_f32s(cols[1]);
-            let (c2, t2) = S::as_simd_f32s(cols[2]);
-            let (c3, t3) = S::as_simd_f32s(cols[3]);
+            let ([c0, c1, c2, c3], [t0, t1, t2, t3]) = below_block::<S>(lower, n, j);
             let (xh, xt) = S::as_simd_f32s(&x[r0..]);
             let (head, tail) = y.split_at_mut(r0);
             let (yh, yt) = S::as_mut_simd_f32s(tail);
@@ -128,12 +134,7 @@ impl WithSimd for CholSolve<'_> {
                     z[r] -= col[r] * v;
                 }
             }
-            let cols: [&[f32]; 4] =
-                std::array::from_fn(|c| &lower[(j + c) * n + r0..(j + c + 1) * n]);
-            let (c0, t0) = S::as_simd_f32s(cols[0]);
-            let (c1, t1) = S::as_simd_f32s(cols[1]);
-            let (c2, t2) = S::as_simd_f32s(cols[2]);
-            let (c3, t3) = S::as_simd_f32s(cols[3]);
+            let ([c0, c1, c2, c3], [t0, t1, t2, t3]) = below_block::<S>(lower, n, j);
             let w: [f32; 4] = std::array::from_fn(|c| z[j + c]);
             let s: [S::f32s; 4] = std::array::from_fn(|c| simd.splat_f32s(-w[c]));
             let (zh, zt) = S::as_mut_simd_f32s(&mut z[r0..]);
@@ -168,12 +169,7 @@ impl WithSimd for CholSolve<'_> {
         while j >= 4 {
             j -= 4;
             let r0 = j + 4;
-            let cols: [&[f32]; 4] =
-                std::array::from_fn(|c| &lower[(j + c) * n + r0..(j + c + 1) * n]);
-            let (c0, t0) = S::as_simd_f32s(cols[0]);
-            let (c1, t1) = S::as_simd_f32s(cols[1]);
-            let (c2, t2) = S::as_simd_f32s(cols[2]);
-            let (c3, t3) = S::as_simd_f32s(cols[3]);
+            let ([c0, c1, c2, c3], [t0, t1, t2, t3]) = below_block::<S>(lower, n, j);
             let (zh, zt) = S::as_simd_f32s(&z[r0..]);
             let mut acc = [simd.splat_f32s(0.0); 4];
             for (k, zv) in zh.iter().enumerate() {
