@@ -126,10 +126,11 @@ pub struct Piece {
 }
 
 /// Share of a path's cost spent on its first `t` of `n` λ values, modelled as
-/// `(t/n)^2.5`: later λ values have more active groups and cost more
-/// (measured on the engine bench's folds: the first 38 of 50 λ values take
-/// about half of the time). Only the balance between threads depends on it.
-const PATH_COST_EXPONENT: f64 = 2.5;
+/// `(t/n)^3`: later λ values have more active groups and cost more (measured
+/// on the engine bench's folds: the first 38 to 41 of 50 λ values take half
+/// of the time; of the exponents 2, 2.5, 3 and 4, 3 gave the shortest CV).
+/// Only the balance between threads depends on it.
+const PATH_COST_EXPONENT: f64 = 3.0;
 
 /// Which thread solves which pieces of which fold's path, in order.
 ///
