@@ -18,7 +18,7 @@ use faer::Mat;
 use rayon::prelude::*;
 
 use super::folds::FoldGrams;
-use super::gram::ProfiledGram;
+use super::gram::{Gram, ProfiledGram};
 use super::solver::{Fit, GroupLasso, PathRun, SolverOptions};
 use crate::{Error, Result};
 
@@ -68,25 +68,13 @@ pub fn cross_validate(
             PathRun::new(problem, weights, lambdas, opts, None).map(|r| Mutex::new(Some(r)))
         })
         .collect::<Result<_>>()?;
-    let fits = run_paths(&setups, &runs, lambdas.len())?;
-    // Held-out errors, a whole path per matrix product.
-    let fold_mse: Vec<Vec<f64>> = fits
+    let fold_fits = run_paths(&setups, &runs, lambdas.len())?;
+    let fold_mse: Vec<Vec<f64>> = fold_fits
         .par_iter()
         .zip(setups.par_iter())
         .zip(grams.held.par_iter())
-        .map(|((fits, (prof, _)), held)| {
-            let full: Vec<Vec<f64>> = fits.iter().map(|f| prof.full_coef(&f.coef)).collect();
-            let d = full.first().map_or(0, Vec::len);
-            let coefs = Mat::from_fn(d, full.len(), |i, t| full[t][i]);
-            let nh = held.n.max(1) as f64;
-            Ok(held
-                .residual_sums_of_squares(coefs.as_ref())?
-                .into_iter()
-                .map(|r| r / nh)
-                .collect())
-        })
+        .map(|((fits, (prof, _)), held)| held_out_mse(prof, held, fits))
         .collect::<Result<_>>()?;
-    let fold_fits = fits;
     let nf = fold_mse.len() as f64;
     let nl = lambdas.len();
     let mean_mse: Vec<f64> = (0..nl)
@@ -112,6 +100,21 @@ pub fn cross_validate(
         se_mse,
         fold_fits,
     })
+}
+
+/// Held-out mean squared error of each fit (penalised coefficients of the
+/// profiled problem `prof`) on the rows of `held`, a whole list of fits per
+/// matrix product ([`Gram::residual_sums_of_squares`]).
+pub fn held_out_mse(prof: &ProfiledGram, held: &Gram, fits: &[Fit]) -> Result<Vec<f64>> {
+    let full: Vec<Vec<f64>> = fits.iter().map(|f| prof.full_coef(&f.coef)).collect();
+    let d = full.first().map_or(held.dim(), Vec::len);
+    let coefs = Mat::from_fn(d, full.len(), |i, t| full[t][i]);
+    let nh = held.n.max(1) as f64;
+    Ok(held
+        .residual_sums_of_squares(coefs.as_ref())?
+        .into_iter()
+        .map(|r| r / nh)
+        .collect())
 }
 
 /// A piece of a thread's work: λ indices `from..to` of fold `fold`.

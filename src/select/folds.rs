@@ -116,29 +116,27 @@ impl FoldGrams {
             .map(|r| Gram::from_augmented(augmented.subrows(r.start, r.len()), Par::Seq))
             .collect();
         let dim = augmented.ncols() - 1;
-        let sum_over = |range: &Range<usize>| {
+        // the segment Grams inside a range of positions
+        let within = |range: Range<usize>| {
+            segs.iter()
+                .zip(&grams)
+                .filter(move |(s, _)| s.start >= range.start && s.end <= range.end)
+                .map(|(_, g)| g)
+        };
+        let sum_over = |range: Range<usize>| {
             let mut acc = Gram::zeros(dim);
-            for (s, g) in segs.iter().zip(&grams) {
-                if s.start >= range.start && s.end <= range.end {
-                    acc.accumulate(g, 1.0);
-                }
-            }
+            within(range).for_each(|g| acc.accumulate(g, 1.0));
             acc
         };
-        let total = sum_over(&(0..n));
-        let held: Vec<Gram> = folds.iter().map(|f| sum_over(&f.held)).collect();
+        let total = sum_over(0..n);
+        let held: Vec<Gram> = folds.iter().map(|f| sum_over(f.held.clone())).collect();
         // training = total − the excluded segments, subtracted one by one
         // (no temporary sum of them)
         let train: Vec<Gram> = folds
             .iter()
             .map(|f| {
-                let ex = f.excluded();
                 let mut t = total.clone();
-                for (s, g) in segs.iter().zip(&grams) {
-                    if s.start >= ex.start && s.end <= ex.end {
-                        t.accumulate(g, -1.0);
-                    }
-                }
+                within(f.excluded()).for_each(|g| t.accumulate(g, -1.0));
                 t
             })
             .collect();

@@ -929,6 +929,11 @@ impl PathRun {
     }
 
     /// The fits solved so far, in the order of the λ values.
+    pub fn fits(&self) -> &[Fit] {
+        &self.fits
+    }
+
+    /// The fits solved so far, in the order of the λ values.
     pub fn into_fits(self) -> Vec<Fit> {
         self.fits
     }
@@ -1085,6 +1090,41 @@ fn pcg(
     None
 }
 
+/// Writes the lower triangle of `Q_AA + blockdiag(α_k (I − u_k u_kᵀ))` on
+/// `coords` (column-major `na × na`, through `put(index, value)`), with the
+/// α terms of `blocks` (per non-zero group its range in `coords`, `α_k`,
+/// `‖η_k‖`; none for `Q_AA` alone). Entries above the diagonal are not
+/// written: faer's Cholesky factorisation reads the lower triangle only.
+fn lower_hessian(
+    qw: &[f64],
+    m: usize,
+    coords: &[usize],
+    blocks: &[(usize, usize, f64, f64)],
+    eta: &[f64],
+    mut put: impl FnMut(usize, f64),
+) {
+    let na = coords.len();
+    for (c, &jc) in coords.iter().enumerate() {
+        let src = &qw[jc * m..(jc + 1) * m];
+        for (r, &jr) in coords.iter().enumerate().skip(c) {
+            put(c * na + r, src[jr]);
+        }
+    }
+    for &(s, e, alpha, n) in blocks {
+        for c in s..e {
+            let uc = eta[coords[c]] / n;
+            for r in c..e {
+                let ur = eta[coords[r]] / n;
+                let q = qw[coords[c] * m + coords[r]];
+                put(
+                    c * na + r,
+                    q + alpha * (if r == c { 1.0 } else { 0.0 } - ur * uc),
+                );
+            }
+        }
+    }
+}
+
 /// The Newton direction by [`pcg`] with the single-precision `Q_AA` and
 /// preconditioner factor of `c` (`blocks`: per non-zero group its range in
 /// `coords`, `α_k` and `‖η_k‖`).
@@ -1196,32 +1236,16 @@ fn newton_dense(
     }
     if !solved {
         // A fresh factorisation in single precision (half the flops' cost and
-        // memory of double), checked by CG like a cached one.
-        let (hbuf, mut qaa, mut factor) = match cache.take() {
+        // memory of double), checked by CG like a cached one. The previous
+        // cache's buffers are reused (no fresh pages to fault in and zero).
+        let (scratch, mut qaa, mut factor) = match cache.take() {
             Some(c) => (c.scratch, c.qaa, c.factor),
             None => Default::default(),
         };
-        for b in [&mut qaa, &mut factor] {
-            b.resize(na * na, 0.0);
-        }
-        for (c, &jc) in coords.iter().enumerate() {
-            let src = &qw[jc * m..(jc + 1) * m];
-            let fc = &mut factor[c * na..(c + 1) * na];
-            for (r, &jr) in coords.iter().enumerate().skip(c) {
-                fc[r] = src[jr] as f32;
-            }
-            qaa[c * na + c..(c + 1) * na].copy_from_slice(&fc[c..]);
-        }
-        for &(s, e, alpha, n) in &blocks {
-            for c in s..e {
-                let uc = eta[coords[c]] / n;
-                for r in c..e {
-                    let ur = eta[coords[r]] / n;
-                    factor[c * na + r] +=
-                        (alpha * (if r == c { 1.0 } else { 0.0 } - ur * uc)) as f32;
-                }
-            }
-        }
+        qaa.resize(na * na, 0.0);
+        factor.resize(na * na, 0.0);
+        lower_hessian(qw, m, &coords, &[], eta, |i, v| qaa[i] = v as f32);
+        lower_hessian(qw, m, &coords, &blocks, eta, |i, v| factor[i] = v as f32);
         let mut mem = MemBuffer::new(llt::factor::cholesky_in_place_scratch::<f32>(
             na,
             Par::Seq,
@@ -1236,11 +1260,11 @@ fn newton_dense(
         )
         .is_ok()
             && factor.iter().step_by(na + 1).all(|v| v.is_finite());
-        let c = NewtonCache {
-            coords: global.clone(),
+        let mut c = NewtonCache {
+            coords: global,
             qaa,
             factor,
-            scratch: hbuf,
+            scratch,
         };
         if ok {
             if let Some(sol) = cached_direction(&c, &blocks, &coords, eta, rhs.col_as_slice(0)) {
@@ -1248,70 +1272,33 @@ fn newton_dense(
                 solved = true;
             }
         }
+        if !solved {
+            // Last resort: the same Hessian factorised in double precision and
+            // solved directly; its factor, rounded, becomes the preconditioner.
+            let h = &mut c.scratch;
+            h.resize(na * na, 0.0);
+            lower_hessian(qw, m, &coords, &blocks, eta, |i, v| h[i] = v);
+            let mut mem = MemBuffer::new(llt::factor::cholesky_in_place_scratch::<f64>(
+                na,
+                Par::Seq,
+                Default::default(),
+            ));
+            let stack = MemStack::new(&mut mem);
+            let mut hm = MatMut::from_column_major_slice_mut(h, na, na);
+            llt::factor::cholesky_in_place(
+                hm.as_mut(),
+                Default::default(),
+                Par::Seq,
+                stack,
+                Default::default(),
+            )
+            .ok()?;
+            llt::solve::solve_in_place(hm.as_ref(), rhs.as_mut(), Par::Seq, stack);
+            for (f, v) in c.factor.iter_mut().zip(h.iter()) {
+                *f = *v as f32;
+            }
+        }
         *cache = Some(c);
-    }
-    if !solved {
-        let mut mem = MemBuffer::new(llt::factor::cholesky_in_place_scratch::<f64>(
-            na,
-            Par::Seq,
-            Default::default(),
-        ));
-        let stack = MemStack::new(&mut mem);
-        // the buffers of the previous cache are reused (no fresh pages to
-        // fault in and zero); every entry read below is written first
-        let (mut hbuf, mut qaa, mut factor) = match cache.take() {
-            Some(c) => (c.scratch, c.qaa, c.factor),
-            None => Default::default(),
-        };
-        for b in [&mut qaa, &mut factor] {
-            b.resize(na * na, 0.0);
-        }
-        hbuf.resize(na * na, 0.0);
-        // gather Q_AA column by column; keep a single-precision copy for CG
-        for (c, &jc) in coords.iter().enumerate() {
-            let src = &qw[jc * m..(jc + 1) * m];
-            let hc = &mut hbuf[c * na..(c + 1) * na];
-            for (r, &jr) in coords.iter().enumerate() {
-                hc[r] = src[jr];
-            }
-            for (q, h) in qaa[c * na + c..(c + 1) * na].iter_mut().zip(&hc[c..]) {
-                *q = *h as f32;
-            }
-        }
-        let mut h = MatMut::from_column_major_slice_mut(&mut hbuf, na, na);
-        for &(s, e, alpha, n) in &blocks {
-            for c in s..e {
-                let uc = eta[coords[c]] / n;
-                for r in s..e {
-                    let ur = eta[coords[r]] / n;
-                    h[(r, c)] += alpha * (if r == c { 1.0 } else { 0.0 } - ur * uc);
-                }
-            }
-        }
-        llt::factor::cholesky_in_place(
-            h.as_mut(),
-            Default::default(),
-            Par::Seq,
-            stack,
-            Default::default(),
-        )
-        .ok()?;
-        llt::solve::solve_in_place(h.as_ref(), rhs.as_mut(), Par::Seq, stack);
-        for c in 0..na {
-            let (src, dst) = (
-                &hbuf[c * na..(c + 1) * na],
-                &mut factor[c * na..(c + 1) * na],
-            );
-            for r in c..na {
-                dst[r] = src[r] as f32;
-            }
-        }
-        *cache = Some(NewtonCache {
-            coords: global,
-            qaa,
-            factor,
-            scratch: hbuf,
-        });
     }
     let mut x = vec![0.0; m];
     for (r, &i) in coords.iter().enumerate() {

@@ -20,9 +20,10 @@
 use rayon::prelude::*;
 
 use super::context::Context;
+use super::cv::held_out_mse;
 use super::folds::FoldGrams;
 use super::gram::{Gram, ProfiledGram};
-use super::solver::{lambda_grid, Fit, GroupLasso, SolverOptions};
+use super::solver::{lambda_grid, Fit, GroupLasso, PathRun, SolverOptions};
 use crate::Result;
 
 /// λ values solved at a time before the early-stopping check.
@@ -150,14 +151,15 @@ struct FoldRun {
     prof: ProfiledGram,
     problem: GroupLasso,
     held: Gram,
-    theta: Option<Vec<f64>>,
+    run: PathRun,
 }
 
 /// Fits on all rows, and mean held-out errors and their standard errors.
 type CvCurve = (Vec<Fit>, Vec<f64>, Vec<f64>);
 
-/// Cross-validates a λ path, solving it `CHUNK` values at a time with warm
-/// starts, and stops early once the mean held-out error has risen `STOP_SE`
+/// Cross-validates a λ path, solving it `CHUNK` values at a time (each path
+/// resumed where it stopped, so the fits are those of one uninterrupted
+/// path), and stops early once the mean held-out error has risen `STOP_SE`
 /// standard errors above its running minimum for `STOP_AFTER` values (the
 /// settings past that point cannot be chosen by the one-standard-error rule).
 /// It also stops once the fit on all rows selects more than `max_sites`
@@ -181,46 +183,36 @@ fn cv_path_early(
         .map(|(train, held)| {
             let prof = train.profile(q)?;
             let problem = GroupLasso::new(&prof, factors)?;
+            let run = PathRun::new(&problem, weights, grid, opts, None)?;
             Ok(FoldRun {
                 prof,
                 problem,
                 held: held.clone(),
-                theta: None,
+                run,
             })
         })
         .collect::<Result<Vec<_>>>()?;
     let nf = runs.len() as f64;
-    let mut fits: Vec<Fit> = Vec::new();
-    let mut full_theta: Option<Vec<f64>> = None;
+    let mut full_run = PathRun::new(full, weights, grid, opts, None)?;
     let (mut mean, mut se) = (Vec::new(), Vec::new());
     let mut start = 0;
     while start < grid.len() {
-        let chunk = &grid[start..(start + CHUNK).min(grid.len())];
-        // all rows and every fold in parallel; each one sequential inside
-        let (full_fits, fold_mse) = rayon::join(
-            || full.fit_path(weights, chunk, opts, full_theta.as_deref()),
+        let end = (start + CHUNK).min(grid.len());
+        // all rows and every fold in parallel; each path resumed where the
+        // previous chunk left it (warm start, predictor and Newton cache kept)
+        let (_, fold_mse) = rayon::join(
+            || full_run.advance(full, end),
             || {
                 runs.par_iter_mut()
                     .map(|r| {
-                        let fs = r
-                            .problem
-                            .fit_path(weights, chunk, opts, r.theta.as_deref())?;
-                        let mut m = Vec::with_capacity(fs.len());
-                        for f in &fs {
-                            let c = r.prof.full_coef(&f.coef);
-                            m.push(r.held.residual_sum_of_squares(&c)? / r.held.n.max(1) as f64);
-                        }
-                        r.theta = fs.last().map(|f| f.theta.clone());
-                        Ok(m)
+                        r.run.advance(&r.problem, end);
+                        held_out_mse(&r.prof, &r.held, &r.run.fits()[start..end])
                     })
                     .collect::<Result<Vec<Vec<f64>>>>()
             },
         );
-        let full_fits = full_fits?;
         let fold_mse = fold_mse?;
-        full_theta = full_fits.last().map(|f| f.theta.clone());
-        fits.extend(full_fits);
-        for t in 0..chunk.len() {
+        for t in 0..end - start {
             let m = fold_mse.iter().map(|f| f[t]).sum::<f64>() / nf;
             let v = if nf > 1.0 {
                 fold_mse.iter().map(|f| (f[t] - m).powi(2)).sum::<f64>() / (nf - 1.0)
@@ -230,7 +222,7 @@ fn cv_path_early(
             mean.push(m);
             se.push((v / nf).sqrt());
         }
-        start += chunk.len();
+        start = end;
         let (imin, mmin) = mean
             .iter()
             .enumerate()
@@ -242,11 +234,15 @@ fn cv_path_early(
         if last >= imin + STOP_AFTER && mean[last] > mmin + STOP_SE * se[imin] {
             break;
         }
-        if fits.last().is_some_and(|f| f.active.len() > max_sites) {
+        if full_run
+            .fits()
+            .last()
+            .is_some_and(|f| f.active.len() > max_sites)
+        {
             break;
         }
     }
-    Ok((fits, mean, se))
+    Ok((full_run.into_fits(), mean, se))
 }
 
 /// Applies the one-standard-error rule (see the module docs); returns the
