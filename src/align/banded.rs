@@ -57,6 +57,11 @@ impl Banded {
 
     /// Solves A x = b by banded Cholesky; `None` when A is not positive definite.
     pub fn solve(&self, b: &[f64]) -> Option<Vec<f64>> {
+        Some(self.cholesky()?.solve(b))
+    }
+
+    /// The banded Cholesky factor L (A = L Lᵀ); `None` when A is not positive definite.
+    pub fn cholesky(&self) -> Option<BandedFactor> {
         let (n, bw) = (self.n, self.bw);
         // l[o][i] = L(i + o, i)
         let mut l = vec![vec![0.0; n]; bw + 1];
@@ -80,6 +85,83 @@ impl Banded {
                 l[o][j] = s / djj;
             }
         }
+        Some(BandedFactor { n, bw, l })
+    }
+
+    /// Solves the bordered system
+    ///
+    /// ```text
+    /// [ A   B ] [x]   [b]
+    /// [ Bᵀ  C ] [y] = [c]
+    /// ```
+    ///
+    /// with A this banded matrix, B given by its columns (`border`, each of
+    /// length n) and C a small dense m × m block (row-major), by the Schur
+    /// complement: S = C − BᵀA⁻¹B, S y = c − BᵀA⁻¹b, x = A⁻¹(b − B y)
+    /// (Golub & Van Loan, §3.2.10, block elimination). `None` when A or S is
+    /// not positive definite.
+    pub fn solve_bordered(
+        &self,
+        border: &[Vec<f64>],
+        corner: &[f64],
+        b: &[f64],
+        c: &[f64],
+    ) -> Option<(Vec<f64>, Vec<f64>)> {
+        let m = border.len();
+        let f = self.cholesky()?;
+        let ab = f.solve(b);
+        if m == 0 {
+            return Some((ab, Vec::new()));
+        }
+        let a_inv_b: Vec<Vec<f64>> = border.iter().map(|col| f.solve(col)).collect();
+        let dot = |u: &[f64], v: &[f64]| u.iter().zip(v).map(|(a, b)| a * b).sum::<f64>();
+        let mut schur: Vec<f64> = corner.to_vec();
+        let mut rhs: Vec<f64> = c.to_vec();
+        for p in 0..m {
+            rhs[p] -= dot(&border[p], &ab);
+            for q in 0..m {
+                schur[p * m + q] -= dot(&border[p], &a_inv_b[q]);
+            }
+        }
+        let y = dense_cholesky_solve(&schur, &rhs, m)?;
+        let mut x = ab;
+        for (q, col) in a_inv_b.iter().enumerate() {
+            for (xi, v) in x.iter_mut().zip(col) {
+                *xi -= y[q] * v;
+            }
+        }
+        Some((x, y))
+    }
+}
+
+impl Banded {
+    /// The Schur complement S = C − BᵀA⁻¹B of this matrix A in the bordered
+    /// matrix [A B; Bᵀ C] (see [`Banded::solve_bordered`]), row-major m × m.
+    pub fn schur(&self, border: &[Vec<f64>], corner: &[f64]) -> Option<Vec<f64>> {
+        let m = border.len();
+        let f = self.cholesky()?;
+        let mut s = corner.to_vec();
+        for q in 0..m {
+            let x = f.solve(&border[q]);
+            for p in 0..m {
+                s[p * m + q] -= border[p].iter().zip(&x).map(|(a, b)| a * b).sum::<f64>();
+            }
+        }
+        Some(s)
+    }
+}
+
+/// A banded Cholesky factor, reusable for several right-hand sides.
+pub struct BandedFactor {
+    n: usize,
+    bw: usize,
+    l: Vec<Vec<f64>>,
+}
+
+impl BandedFactor {
+    /// Solves L Lᵀ x = b.
+    pub fn solve(&self, b: &[f64]) -> Vec<f64> {
+        let (n, bw, l) = (self.n, self.bw, &self.l);
         let mut y = b.to_vec();
         for i in 0..n {
             for k in i.saturating_sub(bw)..i {
@@ -93,8 +175,45 @@ impl Banded {
             }
             y[i] /= l[0][i];
         }
-        Some(y)
+        y
     }
+}
+
+/// Solves the small dense symmetric positive definite system S y = r (row-major m × m) by Cholesky.
+pub fn dense_cholesky_solve(s: &[f64], r: &[f64], m: usize) -> Option<Vec<f64>> {
+    let mut l = vec![0.0; m * m];
+    for j in 0..m {
+        let mut d = s[j * m + j];
+        for k in 0..j {
+            d -= l[j * m + k] * l[j * m + k];
+        }
+        if !(d > 0.0 && d.is_finite()) {
+            return None;
+        }
+        let d = d.sqrt();
+        l[j * m + j] = d;
+        for i in j + 1..m {
+            let mut v = s[i * m + j];
+            for k in 0..j {
+                v -= l[i * m + k] * l[j * m + k];
+            }
+            l[i * m + j] = v / d;
+        }
+    }
+    let mut y = r.to_vec();
+    for i in 0..m {
+        for k in 0..i {
+            y[i] -= l[i * m + k] * y[k];
+        }
+        y[i] /= l[i * m + i];
+    }
+    for i in (0..m).rev() {
+        for k in i + 1..m {
+            y[i] -= l[k * m + i] * y[k];
+        }
+        y[i] /= l[i * m + i];
+    }
+    Some(y)
 }
 
 #[cfg(test)]
@@ -132,6 +251,49 @@ mod tests {
         let got = a.solve(&b).unwrap();
         for (g, w) in got.iter().zip(&x) {
             assert!((g - w).abs() < 1e-12, "{got:?}");
+        }
+    }
+
+    #[test]
+    fn bordered_solve_matches_a_dense_solve() {
+        // The full 7 × 7 system [A B; Bᵀ C] with A tridiagonal(−1, 4, −1) (5 × 5),
+        // two border columns and C = [[3, 0.5], [0.5, 2]]; x = [1..5], y = [−1, 2].
+        let n = 5;
+        let mut a = Banded::new(n, 3);
+        for i in 0..n {
+            a.add(i, i, 4.0);
+            if i + 1 < n {
+                a.add(i + 1, i, -1.0);
+            }
+        }
+        let border = vec![
+            vec![1.0, 0.0, 0.5, 0.0, 0.2],
+            vec![0.0, 0.3, 0.0, -0.4, 1.0],
+        ];
+        let corner = [3.0, 0.5, 0.5, 2.0];
+        let x: Vec<f64> = (1..=n).map(|v| v as f64).collect();
+        let y = [-1.0, 2.0];
+        let mut b = vec![0.0; n];
+        for i in 0..n {
+            b[i] = 4.0 * x[i];
+            if i > 0 {
+                b[i] -= x[i - 1];
+            }
+            if i + 1 < n {
+                b[i] -= x[i + 1];
+            }
+            b[i] += border[0][i] * y[0] + border[1][i] * y[1];
+        }
+        let c: Vec<f64> = (0..2)
+            .map(|p| {
+                (0..n).map(|i| border[p][i] * x[i]).sum::<f64>()
+                    + corner[p * 2] * y[0]
+                    + corner[p * 2 + 1] * y[1]
+            })
+            .collect();
+        let (gx, gy) = a.solve_bordered(&border, &corner, &b, &c).unwrap();
+        for (g, w) in gx.iter().zip(&x).chain(gy.iter().zip(&y)) {
+            assert!((g - w).abs() < 1e-12, "{gx:?} {gy:?}");
         }
     }
 }

@@ -5,9 +5,9 @@
 
 use super::config::AlignConfig;
 use super::dtw::{dtw_rows, Cost, DtwOptions, StepPattern};
-use super::features::{lerp_at, mean_sd, moving_average, nnls_intercept};
+use super::features::{lerp_at, mean_sd, moving_average, nnls_intercept, NnlsDesign};
 use super::quality::{pearson, quantile, Figures};
-use super::refine::{refine, RefineChannel, RefineOptions};
+use super::refine::{refine, LagParts, RefineChannel, RefineOptions};
 use super::warpmap::{limit_slope, raw_lag, whittaker};
 use crate::Result;
 
@@ -51,6 +51,9 @@ pub struct BlockOutcome {
     pub labels: Vec<String>,
     /// Lag (intact time − EMG time) at every window sample, in samples.
     pub lag: Vec<f64>,
+    /// The block's own estimate of the direction part of the lag and its
+    /// information: (η in s, 1/var(η) in s⁻²); absent when not estimated.
+    pub direction: Option<(f64, f64)>,
     /// Quality figures over the block proper.
     pub figures: Figures,
     /// Composite activations (standardised like the intact features), per feature, window samples.
@@ -65,7 +68,7 @@ pub struct BlockOutcome {
 const SHARED: usize = 4;
 
 /// Smallest correlation between a composite and its intact feature for the feature to take part.
-const MIN_FEATURE_CORR: f64 = 0.3;
+pub(super) const MIN_FEATURE_CORR: f64 = 0.3;
 
 fn scaled(f: &[Vec<f64>], s: &[f64]) -> Vec<Vec<f64>> {
     f.iter()
@@ -130,8 +133,24 @@ fn stacked_corr(a: &[Vec<f64>], b: &[Vec<f64>], r: (usize, usize)) -> f64 {
     pearson(&x, &y)
 }
 
-/// Warps one block.
-pub fn align_block(d: &BlockData, cfg: &AlignConfig) -> Result<BlockOutcome> {
+/// A block after its DTW rounds: the part of the work that does not depend
+/// on the direction lag, shared by both passes of [`super::align`].
+pub struct Warped {
+    /// Smoothed basis series per channel, extended grid.
+    basis: Vec<Vec<Vec<f64>>>,
+    /// Smoothed, EMD-shifted envelopes per site, window samples.
+    env: Vec<Vec<f64>>,
+    /// The smoothed DTW lag, samples.
+    lag: Vec<f64>,
+    /// Standardised composites and intact features, and channel weights.
+    composite: Vec<Vec<f64>>,
+    intact: Vec<Vec<f64>>,
+    scale: Vec<f64>,
+}
+
+/// The DTW rounds of one block: a coarse constant lag, then composites
+/// fitted through the map and warped again, `rounds` times.
+pub fn warp_block(d: &BlockData, cfg: &AlignConfig) -> Result<Warped> {
     let n = d.n;
     let r = (cfg.band_s * d.rate_hz).round().max(1.0) as usize;
     let ma = odd(cfg.feature_smooth_s * d.rate_hz);
@@ -194,52 +213,166 @@ pub fn align_block(d: &BlockData, cfg: &AlignConfig) -> Result<BlockOutcome> {
             r,
         )?;
     }
+    Ok(Warped {
+        basis,
+        env,
+        lag,
+        composite,
+        intact,
+        scale,
+    })
+}
+
+/// Refines and judges one block after its DTW rounds (`w`). With `direction`
+/// (s), the lag's direction part is fixed at that size (the session's pooled
+/// estimate); without it, and with `direction_lag` on, it is estimated in
+/// this block.
+pub fn align_block(
+    d: &BlockData,
+    cfg: &AlignConfig,
+    w: &Warped,
+    direction: Option<f64>,
+) -> Result<BlockOutcome> {
+    let n = d.n;
+    let r = (cfg.band_s * d.rate_hz).round().max(1.0) as usize;
+    let opts = DtwOptions {
+        band: Some(r.min(n.saturating_sub(1)).max(1)),
+        pattern: StepPattern::from_max_slope(cfg.max_slope)?,
+        path: true,
+        side_penalty: cfg.side_penalty,
+        open_ends: true,
+    };
+    let len = n + 2 * d.ext;
+    let nc = d.channels.len();
+    let (basis, env) = (&w.basis, &w.env);
+    let mut lag = w.lag.clone();
+    let (mut composite, mut intact, mut scale) =
+        (w.composite.clone(), w.intact.clone(), w.scale.clone());
+    let at = |lag: &[f64], f: &[f64]| -> Vec<f64> {
+        (0..n)
+            .map(|i| lerp_at(f, (i + d.ext) as f64 + lag[i]))
+            .collect()
+    };
     // Continuous refinement: composites refitted through the map with the
     // speed on the EMG clock, then a smooth lag fitted to them (see [`refine`]).
+    let mut estimate = None;
     if cfg.refine_rounds > 0 && scale.iter().any(|&v| v > 0.0) {
         let ropts = refine_options(d, cfg, r);
         for _round in 0..cfg.refine_rounds {
             let slope = map_slope(&lag);
-            let fit = fit_channels(d, &basis, &env, &lag, Some(&slope));
-            let parts: Vec<Part> = (0..nc)
+            let fit = fit_channels(d, basis, env, &lag, Some(&slope));
+            // Weights γ: per DoF (channel pair) the shared speed-effort
+            // weights, each direction's own displacement weights and intercept.
+            let per_pair = 2 * basis_len(basis) - SHARED + 2;
+            let nb: Vec<usize> = basis.iter().map(Vec::len).collect();
+            let index: Vec<Vec<usize>> = (0..nc)
                 .map(|c| {
-                    let (sp, lv) = split_parts(&basis[c], &fit.beta[c], len);
-                    let model: Vec<f64> = (0..n)
-                        .map(|i| {
-                            let x = (i + d.ext) as f64 + lag[i];
-                            lerp_at(&sp, x) * slope[i] + lerp_at(&lv, x)
+                    let (base, side) = ((c / 2) * per_pair, c % 2);
+                    (0..nb[c])
+                        .map(|m| {
+                            if m < SHARED {
+                                base + m
+                            } else {
+                                base + SHARED + side * (nb[c] - SHARED) + (m - SHARED)
+                            }
                         })
-                        .collect();
-                    let (mm, sd) = mean_sd(&model);
-                    let (ma, _) = mean_sd(&fit.composite[c]);
-                    let a: Vec<f64> = fit.composite[c].iter().map(|v| v - ma + mm).collect();
-                    // Signal-to-misfit weight ρ²/(1 − ρ²) per unit of feature variance.
-                    let rho2 = fit.scale[c].powi(2).min(0.999);
-                    let w = if sd > 1e-12 {
-                        rho2 / (1.0 - rho2) / (sd * sd)
-                    } else {
-                        0.0
-                    };
-                    (a, sp, lv, w)
+                        .collect()
                 })
                 .collect();
-            let chans: Vec<RefineChannel> = parts
-                .iter()
-                .map(|(a, sp, lv, w)| RefineChannel {
-                    composite: a,
-                    speed: sp,
-                    level: lv,
-                    weight: *w,
+            let intercept = |c: usize| (c / 2) * per_pair + per_pair - 2 + c % 2;
+            let mut gamma0 = vec![0.0; nc.div_ceil(2) * per_pair];
+            let mut weight = vec![0.0; nc];
+            for c in 0..nc {
+                for (m, &j) in index[c].iter().enumerate() {
+                    gamma0[j] = fit.beta[c][m];
+                }
+                let (sp, lv) = split_parts(&basis[c], &fit.beta[c], len);
+                let model: Vec<f64> = (0..n)
+                    .map(|i| {
+                        let x = (i + d.ext) as f64 + lag[i];
+                        lerp_at(&sp, x) * slope[i] + lerp_at(&lv, x)
+                    })
+                    .collect();
+                let (mm, sd) = mean_sd(&model);
+                let (ma, _) = mean_sd(&fit.composite[c]);
+                gamma0[intercept(c)] = ma - mm;
+                // Signal-to-misfit weight ρ²/(1 − ρ²) per unit of feature variance.
+                let rho2 = fit.scale[c].powi(2).min(0.999);
+                weight[c] = if sd > 1e-12 {
+                    rho2 / (1.0 - rho2) / (sd * sd)
+                } else {
+                    0.0
+                };
+            }
+            let chans: Vec<RefineChannel> = (0..nc)
+                .map(|c| RefineChannel {
+                    composite: &fit.composite[c],
+                    basis: &basis[c],
+                    index: &index[c],
+                    speed_terms: SHARED,
+                    intercept: intercept(c),
+                    weight: weight[c],
                 })
                 .collect();
             if chans.iter().all(|c| c.weight <= 0.0) {
                 break;
             }
-            lag = finish_lag(refine(&chans, d.ext, &lag, &ropts), cfg, r);
-            fit.adopt(d, &basis, &mut scale, &mut composite, &mut intact);
+            let (regs, known) = match (cfg.direction_lag, direction) {
+                (false, _) => (Vec::new(), Vec::new()),
+                (true, None) => (vec![direction_regressor(d, cfg, &lag)], Vec::new()),
+                (true, Some(eta)) => {
+                    let dr = direction_regressor(d, cfg, &lag);
+                    (Vec::new(), dr.iter().map(|v| v * eta * d.rate_hz).collect())
+                }
+            };
+            let parts = LagParts {
+                regressors: &regs,
+                known: &known,
+            };
+            let refined = refine(
+                &chans,
+                d.ext,
+                &lag,
+                &parts,
+                &gamma0,
+                cfg.refine_weights,
+                &ropts,
+            );
+            if let (Some(&e), Some(&i)) =
+                (refined.direction.first(), refined.direction_info.first())
+            {
+                estimate = Some((e / d.rate_hz, i * d.rate_hz * d.rate_hz));
+            }
+            lag = finish_lag(refined.lag, cfg, r);
+            fit.adopt(d, basis, &mut scale, &mut composite, &mut intact);
         }
     }
     let used: Vec<usize> = (0..nc).filter(|&c| scale[c] > 0.0).collect();
+    if used.is_empty() {
+        // No intact feature matches any non-negative mix of the sites: there
+        // is nothing to warp, and the NaN correlations fail the block.
+        let lag_in: Vec<f64> = lag[d.interior.0..d.interior.1]
+            .iter()
+            .map(|l| l / d.rate_hz)
+            .collect();
+        return Ok(BlockOutcome {
+            labels: Vec::new(),
+            lag,
+            direction: None,
+            figures: Figures {
+                lag_median_s: quantile(&lag_in, 0.5),
+                lag_iqr_s: quantile(&lag_in, 0.75) - quantile(&lag_in, 0.25),
+                lag_p10_p90_s: [quantile(&lag_in, 0.1), quantile(&lag_in, 0.9)],
+                corr_before: f64::NAN,
+                corr_after: f64::NAN,
+                corr_null: f64::NAN,
+                share_at_limit: 0.0,
+            },
+            composite: Vec::new(),
+            intact_before: Vec::new(),
+            intact_after: Vec::new(),
+        });
+    }
     let pick = |f: &[Vec<f64>]| used.iter().map(|&c| f[c].clone()).collect::<Vec<_>>();
     let sc = pick_vals(&scale, &used);
     let (composite, intact) = (scaled(&pick(&composite), &sc), scaled(&pick(&intact), &sc));
@@ -287,6 +420,7 @@ pub fn align_block(d: &BlockData, cfg: &AlignConfig) -> Result<BlockOutcome> {
     Ok(BlockOutcome {
         labels,
         lag,
+        direction: estimate,
         figures,
         composite,
         intact_before,
@@ -294,8 +428,10 @@ pub fn align_block(d: &BlockData, cfg: &AlignConfig) -> Result<BlockOutcome> {
     })
 }
 
-/// One channel's refinement input: composite, speed and displacement parts, weight.
-type Part = (Vec<f64>, Vec<f64>, Vec<f64>, f64);
+/// Number of basis series per channel (all channels have the same layout).
+fn basis_len(basis: &[Vec<Vec<f64>>]) -> usize {
+    basis.first().map_or(0, Vec::len)
+}
 
 /// Composite activations fitted to the intact side through a lag.
 struct Fit {
@@ -352,6 +488,8 @@ fn fit_channels(
             })
             .collect()
     };
+    // The sites' Gram matrix is the same for every target.
+    let sites = NnlsDesign::new(env);
     let mut out = Fit {
         composite: vec![Vec::new(); nc],
         beta: vec![Vec::new(); nc],
@@ -379,7 +517,7 @@ fn fit_channels(
         for _als in 0..4 {
             for (p, _) in pair.iter().enumerate() {
                 let target = combine(&warped[p], &beta[p], 0.0, n);
-                let (b0, w) = nnls_intercept(env, &target);
+                let (b0, w) = sites.solve(&target);
                 comps[p] = combine(env, &w, b0, n);
             }
             // Joint fit: shared speed-effort columns, own displacement columns.
@@ -467,6 +605,28 @@ fn refine_options(d: &BlockData, cfg: &AlignConfig, r: usize) -> RefineOptions {
         tukey_c: cfg.robust_c,
         scale_floor: 0.02,
     }
+}
+
+/// The direction of movement of the hand on the window through `lag`: per
+/// DoF (channel pair) the intact rate v = s₊ − s₋ scaled to
+/// clamp(v / v₀, −1, 1) with v₀ = `direction_speed_dps`, summed over the
+/// DoFs and clamped to [−1, 1] again (+1: flexing, −1: extending, 0: still
+/// or moving both ways at once), smoothed by a centred moving average over
+/// `direction_smooth_s` on the intact clock and read at i + ℓ(i).
+fn direction_regressor(d: &BlockData, cfg: &AlignConfig, lag: &[f64]) -> Vec<f64> {
+    let w = odd(cfg.direction_smooth_s * d.rate_hz);
+    let len = d.n + 2 * d.ext;
+    let mut raw = vec![0.0; len];
+    for p in d.channels.chunks(2).filter(|p| p.len() == 2) {
+        for (r, (a, b)) in raw.iter_mut().zip(p[0].speed.iter().zip(&p[1].speed)) {
+            *r += ((a - b) / cfg.direction_speed_dps).clamp(-1.0, 1.0);
+        }
+    }
+    raw.iter_mut().for_each(|v| *v = v.clamp(-1.0, 1.0));
+    let sm = moving_average(&raw, w);
+    (0..d.n)
+        .map(|i| lerp_at(&sm, (i + d.ext) as f64 + lag[i]))
+        .collect()
 }
 
 /// Slope limits and the band on a refined lag.

@@ -42,10 +42,22 @@ pub struct AlignConfig {
     pub refine_iterations: usize,
     /// Knot spacing of the refined lag spline, s.
     pub refine_knot_s: f64,
-    /// Half-gain period of the roughness penalty of the refined lag, s.
+    /// Half-gain period of the roughness penalty of the refined lag's base, s.
     pub refine_period_s: f64,
     /// Tukey biweight constant of the refinement's robust weights, in robust residual scales.
     pub robust_c: f64,
+    /// Whether the refinement refits the intact features' weights (effort
+    /// and holding) jointly with the lag, instead of keeping those fitted
+    /// through the DTW map.
+    pub refine_weights: bool,
+    /// Whether the refined lag has a direction part per moving DoF (a lag
+    /// that differs between the two directions of movement and returns to
+    /// its base while the DoF is still).
+    pub direction_lag: bool,
+    /// Width of the moving average that smooths a DoF's direction of movement, s.
+    pub direction_smooth_s: f64,
+    /// Intact-side speed at which a DoF's direction counts in full, deg/s.
+    pub direction_speed_dps: f64,
     /// Quality thresholds.
     pub quality: QualityThresholds,
 }
@@ -63,11 +75,15 @@ impl Default for AlignConfig {
             min_speed_dps: 5.0,
             side_penalty: 1.0,
             rounds: 3,
-            refine_rounds: 1,
+            refine_rounds: 3,
             refine_iterations: 12,
             refine_knot_s: 0.1,
-            refine_period_s: 1.5,
+            refine_period_s: 8.0,
             robust_c: 4.685,
+            refine_weights: true,
+            direction_lag: true,
+            direction_smooth_s: 0.3,
+            direction_speed_dps: 10.0,
             quality: QualityThresholds::default(),
         }
     }
@@ -123,6 +139,8 @@ impl AlignConfig {
         pos(self.refine_knot_s, "refine_knot_s")?;
         pos(self.refine_period_s, "refine_period_s")?;
         pos(self.robust_c, "robust_c")?;
+        pos(self.direction_smooth_s, "direction_smooth_s")?;
+        pos(self.direction_speed_dps, "direction_speed_dps")?;
         if self.refine_rounds > 0 && self.refine_iterations == 0 {
             return Err((
                 "refine_iterations".into(),
@@ -208,10 +226,14 @@ band, slope limit, expected electro-mechanical delay, map smoothing and the bloc
         ("min_speed_dps", "RMS intact speed in deg/s below which a DoF counts as still in a block. Common practice, no source."),
         ("side_penalty", "Cost added to each compression or expansion step of the DTW (in standardised squared feature units), so the path leaves the diagonal only where the features pay for it; as dtaidistance's penalty squared. Tuned on simulated sessions."),
         ("rounds", "Fit-warp rounds: composites refitted through the map and warped again."),
-        ("refine_rounds", "Rounds of the continuous lag refinement after DTW (composites refitted through the map with the speed on the EMG clock, then a smooth lag curve fitted to them by penalised Gauss-Newton); 0 keeps the smoothed DTW map. One round measured best on simulated sessions: further rounds let the composites follow the map's own errors."),
+        ("refine_rounds", "Rounds of the continuous lag refinement after DTW (composites refitted through the current map with the speed on the EMG clock, then the lag and the intact features' weights fitted to them by penalised Gauss-Newton); 0 keeps the smoothed DTW map. 3 measured best on the simulated accuracy scenarios (median over the drift, offset and direction scenarios 7.8-14.1 ms with 1 round, 8.1-13.6 ms with 3; 90th percentile on the direction scenario 35.4 and 29.8 ms)."),
         ("refine_iterations", "Gauss-Newton iterations per refinement round (Levenberg-damped; Nocedal & Wright 2006, ch. 10)."),
         ("refine_knot_s", "Knot spacing in s of the cubic B-spline lag curve of the refinement."),
-        ("refine_period_s", "Half-gain period in s of the second-difference penalty on the refined lag (P-splines, Eilers & Marx 1996): lag changes faster than this are damped, flat stretches (holds) are bridged from the moves on either side. Chosen on the simulated accuracy scenarios (1.0-1.5 s measured alike; 2.5 s loses the within-cycle changes)."),
+        ("refine_period_s", "Half-gain period in s of the second-difference penalty on the base of the refined lag (P-splines, Eilers & Marx 1996): base changes faster than this are damped, flat stretches (holds) are bridged from the moves on either side; changes with the direction of movement go to the direction part. Chosen on the simulated accuracy scenarios: 8 s meets the target on the drift, offset and direction scenarios; 1.5 s (with direction_lag = false, refine_rounds = 1, refine_weights = false) follows a lag that wobbles within seconds regardless of the movement better (23.5 against 38.3 ms median) but a direction-dependent lag much worse (35.0 against 11.6 ms)."),
+        ("refine_weights", "Refit the intact features' weights (effort per position, holding, intercept) jointly with the lag in the refinement; false keeps those fitted through the DTW map, which keep part of that map's error."),
+        ("direction_lag", "Give the lag a part that follows the direction of the hand's movement (lag = base + eta while flexing, base - eta while extending, base while still), with eta pooled over the session's blocks by their information; alignment.json reports it as direction_lag_s."),
+        ("direction_smooth_s", "Moving-average width in s that smooths the direction of movement (+1 flexing, -1 extending): how gradually the direction part switches at a reversal. 0.3 and 0.5 s measured alike on the simulated scenarios."),
+        ("direction_speed_dps", "Intact speed in deg/s from which a DoF's direction counts in full; slower movement counts in proportion. Common practice, no source."),
         ("robust_c", "Tukey biweight constant (in robust residual scales) of the refinement's weights: samples the EMG cannot explain, such as a passive return after a hold, drop out. 4.685 is the usual 95%-efficiency value (Beaton & Tukey 1974)."),
         ("quality", "Thresholds of the per-block verdict ok / doubtful / failed."),
         ("quality.fail_corr", "Feature correlation after warping below which a block fails."),

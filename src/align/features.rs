@@ -48,53 +48,77 @@ pub fn mean_sd(x: &[f64]) -> (f64, f64) {
 /// minimise ‖y − b − X w‖² over b and w ≥ 0, `cols` being the columns of X.
 /// Returns (b, w).
 pub fn nnls_intercept(cols: &[Vec<f64>], y: &[f64]) -> (f64, Vec<f64>) {
-    let k = cols.len();
-    let n = y.len();
-    let (my, _) = mean_sd(y);
-    let means: Vec<f64> = cols.iter().map(|c| mean_sd(c).0).collect();
-    // Gram matrix and right-hand side of the centred problem.
-    let mut g = vec![0.0; k * k];
-    let mut c = vec![0.0; k];
-    for a in 0..k {
-        for i in 0..n {
-            c[a] += (cols[a][i] - means[a]) * (y[i] - my);
-        }
-        for b in a..k {
-            let mut s = 0.0;
-            for i in 0..n {
-                s += (cols[a][i] - means[a]) * (cols[b][i] - means[b]);
-            }
-            g[a * k + b] = s;
-            g[b * k + a] = s;
-        }
-    }
-    let trace: f64 = (0..k).map(|a| g[a * k + a]).sum::<f64>().max(1e-300);
-    let ridge = 1e-8 * trace / k.max(1) as f64;
-    let mut w = vec![0.0; k];
-    let mut gw = vec![0.0; k];
-    for _sweep in 0..1000 {
-        let mut change = 0.0f64;
+    NnlsDesign::new(cols).solve(y)
+}
+
+/// The design X of [`nnls_intercept`] with its centred Gram matrix, for
+/// solving against several right-hand sides.
+pub struct NnlsDesign<'a> {
+    cols: &'a [Vec<f64>],
+    means: Vec<f64>,
+    /// Centred Gram matrix, row-major k × k.
+    gram: Vec<f64>,
+}
+
+impl<'a> NnlsDesign<'a> {
+    /// Centres the columns and forms their Gram matrix.
+    pub fn new(cols: &'a [Vec<f64>]) -> Self {
+        let k = cols.len();
+        let means: Vec<f64> = cols.iter().map(|c| mean_sd(c).0).collect();
+        let mut gram = vec![0.0; k * k];
         for a in 0..k {
-            let d = g[a * k + a] + ridge;
-            if d <= 0.0 {
-                continue;
-            }
-            let new = (w[a] + (c[a] - gw[a] - ridge * w[a]) / d).max(0.0);
-            let delta = new - w[a];
-            if delta != 0.0 {
-                for b in 0..k {
-                    gw[b] += g[b * k + a] * delta;
-                }
-                w[a] = new;
-                change = change.max(delta.abs() * d.sqrt());
+            for b in a..k {
+                let s: f64 = cols[a]
+                    .iter()
+                    .zip(&cols[b])
+                    .map(|(x, y)| (x - means[a]) * (y - means[b]))
+                    .sum();
+                gram[a * k + b] = s;
+                gram[b * k + a] = s;
             }
         }
-        if change <= 1e-10 * trace.sqrt() {
-            break;
-        }
+        NnlsDesign { cols, means, gram }
     }
-    let b = my - w.iter().zip(&means).map(|(w, m)| w * m).sum::<f64>();
-    (b, w)
+
+    /// (b, w) of [`nnls_intercept`] for the target `y`.
+    pub fn solve(&self, y: &[f64]) -> (f64, Vec<f64>) {
+        let k = self.cols.len();
+        let (my, _) = mean_sd(y);
+        let (g, means) = (&self.gram, &self.means);
+        let c: Vec<f64> = self
+            .cols
+            .iter()
+            .zip(means)
+            .map(|(col, m)| col.iter().zip(y).map(|(x, v)| (x - m) * (v - my)).sum())
+            .collect();
+        let trace: f64 = (0..k).map(|a| g[a * k + a]).sum::<f64>().max(1e-300);
+        let ridge = 1e-8 * trace / k.max(1) as f64;
+        let mut w = vec![0.0; k];
+        let mut gw = vec![0.0; k];
+        for _sweep in 0..1000 {
+            let mut change = 0.0f64;
+            for a in 0..k {
+                let d = g[a * k + a] + ridge;
+                if d <= 0.0 {
+                    continue;
+                }
+                let new = (w[a] + (c[a] - gw[a] - ridge * w[a]) / d).max(0.0);
+                let delta = new - w[a];
+                if delta != 0.0 {
+                    for b in 0..k {
+                        gw[b] += g[b * k + a] * delta;
+                    }
+                    w[a] = new;
+                    change = change.max(delta.abs() * d.sqrt());
+                }
+            }
+            if change <= 1e-10 * trace.sqrt() {
+                break;
+            }
+        }
+        let b = my - w.iter().zip(means).map(|(w, m)| w * m).sum::<f64>();
+        (b, w)
+    }
 }
 
 /// What an alignment feature measures.

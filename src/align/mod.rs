@@ -22,21 +22,31 @@
 //!    into a smooth strictly increasing map ([`warpmap`]), refits the
 //!    composites through the map and warps again;
 //! 4. refines the lag continuously ([`refine`]): the composites are refitted
-//!    once more through the DTW map with the intact speed put on the EMG
-//!    clock (times the map's slope), and a smooth lag curve (cubic P-spline,
-//!    half-gain period `refine_period_s`) is fitted to them by robust,
-//!    penalised Gauss–Newton, each channel weighted by its signal-to-misfit
-//!    ratio ρ²/(1 − ρ²) (ρ the composite's correlation with its intact
-//!    feature), so a channel the sites explain poorly (a muscle that serves
-//!    two DoFs in a block that moves both) does not bend the lag. The DTW
-//!    side-step penalty that keeps the path from chasing envelope noise also
-//!    flattens real lag changes within a cycle; the refinement follows them
-//!    (on the simulated within-cycle scenario the error on moving rows falls
-//!    from 31 to 20 ms median) without a per-step penalty. It costs some
-//!    accuracy in hold-and-release blocks, where composites refitted through
-//!    a map that is off at a release can misplace that release (figures in
-//!    the accuracy tests); `refine_rounds = 0` keeps the DTW map alone;
-//! 5. judges the block ([`quality`]).
+//!    through the DTW map with the intact speed put on the EMG clock (times
+//!    the map's slope), and the lag is fitted to them by robust, penalised
+//!    Gauss–Newton, each channel weighted by its signal-to-misfit ratio
+//!    ρ²/(1 − ρ²) (ρ the composite's correlation with its intact feature),
+//!    so a channel the sites explain poorly does not bend the lag. The lag
+//!    is a slow base (cubic P-spline, half-gain period `refine_period_s`,
+//!    8 s) plus a direction part η·D(t): D is the smoothed direction of the
+//!    hand's movement on the intact side (+1 flexing, −1 extending, 0 still),
+//!    so the lag may differ between the two directions, switch at every
+//!    reversal and return to its base through holds, without a roughness
+//!    penalty on the switch. The intact features' weights (effort per
+//!    position, holding) are refitted jointly with the lag: held at the
+//!    values fitted through the DTW map, they keep part of that map's error
+//!    (a position-dependent effort skews a speed bump as a timing shift
+//!    would). `refine_rounds` (3) rounds refit the composites through the
+//!    new map;
+//! 5. pools the direction part over the session: each block's own η, weighted
+//!    by its information (the inverse of its variance with the base and the
+//!    weights profiled out), gives the session's η, and every block is
+//!    aligned again with the direction part fixed at it. A block alone can
+//!    hardly tell a direction lag from a position-dependent effort when the
+//!    movement is a steady oscillation (both make the flexion bump look
+//!    later and the extension bump earlier); blocks with varied movement
+//!    carry most of the information;
+//! 6. judges the block ([`quality`]).
 //!
 //! Block maps are joined with raised-cosine cross-fades at block edges;
 //! between aligned blocks (rests, failed blocks) the lag is interpolated
@@ -66,6 +76,7 @@ use block::{align_block, BlockData};
 use features::lerp_at;
 use kinematics::Kinematics;
 use ndarray::Array2;
+use rayon::prelude::*;
 use serde::Serialize;
 
 /// Conditioned EMG envelopes on a uniform grid of the EMG clock.
@@ -117,6 +128,9 @@ pub struct BlockAlignment {
     pub quality: Verdict,
     /// Why, when not `ok`; for rests, what was done.
     pub reasons: Vec<String>,
+    /// The block's own estimate of the direction part of the lag, s (pass 1;
+    /// absent when not estimated).
+    pub direction_own_s: Option<f64>,
     /// Traces for figures (not serialised).
     #[serde(skip)]
     pub traces: Option<Traces>,
@@ -162,6 +176,10 @@ pub struct Aligned {
     pub usable: Vec<bool>,
     /// Per-block alignment.
     pub blocks: Vec<BlockAlignment>,
+    /// The session's direction lag η, s: the lag is its smooth base + η
+    /// while the hand flexes and − η while it extends (absent when the
+    /// direction part is off or no block could estimate it).
+    pub direction_lag_s: Option<f64>,
 }
 
 impl Aligned {
@@ -204,6 +222,7 @@ pub fn align(s: &Session, env: &Envelopes, blocks: &[Block], cfg: &AlignConfig) 
     let taper = ((0.25 * rate).round() as usize).max(1);
     let mut block_of = vec![None; n];
     let mut out_blocks = Vec::with_capacity(blocks.len());
+    let mut pending: Vec<Pending> = Vec::new();
 
     for (bi, b) in blocks.iter().enumerate() {
         let (a, e) = (
@@ -248,6 +267,7 @@ pub fn align(s: &Session, env: &Envelopes, blocks: &[Block], cfg: &AlignConfig) 
                 quality: q,
                 reasons,
                 traces: None,
+                direction_own_s: None,
             });
             continue;
         }
@@ -270,6 +290,7 @@ pub fn align(s: &Session, env: &Envelopes, blocks: &[Block], cfg: &AlignConfig) 
                     cfg.min_speed_dps
                 )],
                 traces: None,
+                direction_own_s: None,
             });
             continue;
         }
@@ -284,6 +305,7 @@ pub fn align(s: &Session, env: &Envelopes, blocks: &[Block], cfg: &AlignConfig) 
                 quality: Verdict::Failed,
                 reasons: vec![format!("block too short to warp ({:.2} s)", b.duration_s())],
                 traces: None,
+                direction_own_s: None,
             });
             continue;
         }
@@ -371,7 +393,56 @@ pub fn align(s: &Session, env: &Envelopes, blocks: &[Block], cfg: &AlignConfig) 
             channels,
             ext,
         };
-        let o = align_block(&data, cfg)?;
+        out_blocks.push(BlockAlignment {
+            block: b.clone(),
+            dofs_used: used.iter().map(|&d| dofs[d].clone()).collect(),
+            figures: None,
+            quality: Verdict::Failed,
+            reasons: Vec::new(),
+            traces: None,
+            direction_own_s: None,
+        });
+        pending.push(Pending {
+            slot: out_blocks.len() - 1,
+            data,
+            start: a,
+            end: e,
+            w0,
+        });
+    }
+
+    // Pass 1: every block on its own. With a direction part, the session's
+    // direction lag is pooled from the blocks' own estimates, each weighted
+    // by its information (the inverse of its variance with the smooth lag
+    // and the feature weights profiled out), and pass 2 aligns every block
+    // again with the direction part fixed at the pooled value.
+    // Blocks are independent within a pass: they run in parallel, and the
+    // results are collected in block order (the same for any thread count).
+    let warped = pending
+        .par_iter()
+        .map(|p| block::warp_block(&p.data, cfg))
+        .collect::<Result<Vec<_>>>()?;
+    let pass = |direction: Option<f64>| {
+        pending
+            .par_iter()
+            .zip(warped.par_iter())
+            .map(|(p, w)| align_block(&p.data, cfg, w, direction))
+            .collect::<Result<Vec<_>>>()
+    };
+    let mut outcomes = pass(None)?;
+    let pooled = if cfg.direction_lag {
+        pool_direction(&outcomes, cfg)
+    } else {
+        None
+    };
+    for (p, o) in pending.iter().zip(&outcomes) {
+        out_blocks[p.slot].direction_own_s = o.direction.map(|(eta, _)| eta);
+    }
+    if let Some(eta) = pooled {
+        outcomes = pass(Some(eta))?;
+    }
+    for (p, o) in pending.iter().zip(outcomes) {
+        let (a, e, w0, wn) = (p.start, p.end, p.w0, p.data.n);
         let (quality, reasons) = quality::judge(&o.figures, &cfg.quality, cfg.band_s);
         if quality != Verdict::Failed {
             for k in 0..wn {
@@ -392,21 +463,18 @@ pub fn align(s: &Session, env: &Envelopes, blocks: &[Block], cfg: &AlignConfig) 
                 lag_w[i] += w;
             }
         }
-        let (ta, tb) = data.interior;
-        out_blocks.push(BlockAlignment {
-            block: b.clone(),
-            dofs_used: used.iter().map(|&d| dofs[d].clone()).collect(),
-            figures: Some(o.figures),
-            quality,
-            reasons,
-            traces: Some(Traces {
-                time_s: (ta..tb).map(|k| t_of(w0 + k)).collect(),
-                labels: o.labels.clone(),
-                composite: o.composite.iter().map(|c| c[ta..tb].to_vec()).collect(),
-                before: o.intact_before.iter().map(|c| c[ta..tb].to_vec()).collect(),
-                after: o.intact_after.iter().map(|c| c[ta..tb].to_vec()).collect(),
-                lag_s: o.lag[ta..tb].iter().map(|l| l / rate).collect(),
-            }),
+        let (ta, tb) = p.data.interior;
+        let slot = &mut out_blocks[p.slot];
+        slot.figures = Some(o.figures);
+        slot.quality = quality;
+        slot.reasons = reasons;
+        slot.traces = Some(Traces {
+            time_s: (ta..tb).map(|k| t_of(w0 + k)).collect(),
+            labels: o.labels.clone(),
+            composite: o.composite.iter().map(|c| c[ta..tb].to_vec()).collect(),
+            before: o.intact_before.iter().map(|c| c[ta..tb].to_vec()).collect(),
+            after: o.intact_after.iter().map(|c| c[ta..tb].to_vec()).collect(),
+            lag_s: o.lag[ta..tb].iter().map(|l| l / rate).collect(),
         });
     }
 
@@ -451,7 +519,40 @@ pub fn align(s: &Session, env: &Envelopes, blocks: &[Block], cfg: &AlignConfig) 
         block_of,
         usable,
         blocks: out_blocks,
+        direction_lag_s: pooled,
     })
+}
+
+/// A block waiting to be warped: where its result goes and its data.
+struct Pending {
+    /// Index into the output blocks.
+    slot: usize,
+    data: BlockData,
+    /// The block proper on the feature grid: samples `start .. end`.
+    start: usize,
+    end: usize,
+    /// First sample of the window.
+    w0: usize,
+}
+
+/// The session's direction lag (s): the information-weighted mean of the
+/// blocks' own estimates, over the blocks that pass 1 did not fail. `None`
+/// without any estimate.
+fn pool_direction(outcomes: &[block::BlockOutcome], cfg: &AlignConfig) -> Option<f64> {
+    let (mut num, mut den) = (0.0, 0.0);
+    for o in outcomes {
+        let (q, _) = quality::judge(&o.figures, &cfg.quality, cfg.band_s);
+        if q == Verdict::Failed {
+            continue;
+        }
+        if let Some((eta, info)) = o.direction {
+            if eta.is_finite() && info.is_finite() && info > 0.0 {
+                num += info * eta;
+                den += info;
+            }
+        }
+    }
+    (den > 0.0).then(|| num / den)
 }
 
 /// Fills `None` stretches linearly between known neighbours (constant beyond the ends; 0 if none known).

@@ -66,6 +66,7 @@ struct JsonBlock<'a> {
     corr_after: Option<f64>,
     corr_null: Option<f64>,
     share_at_limit: Option<f64>,
+    direction_own_s: Option<f64>,
     quality: &'a str,
     reasons: &'a [String],
 }
@@ -95,6 +96,7 @@ pub fn alignment_json(a: &Aligned, cfg: &super::AlignConfig) -> serde_json::Valu
                 corr_after: f.and_then(|f| finite(f.corr_after)),
                 corr_null: f.and_then(|f| finite(f.corr_null)),
                 share_at_limit: f.and_then(|f| finite(f.share_at_limit)),
+                direction_own_s: b.direction_own_s.and_then(finite),
                 quality: b.quality.as_str(),
                 reasons: &b.reasons,
             }
@@ -104,6 +106,7 @@ pub fn alignment_json(a: &Aligned, cfg: &super::AlignConfig) -> serde_json::Valu
         "format": 1,
         "rows": a.len(),
         "usable_rows": a.usable.iter().filter(|&&u| u).count(),
+        "direction_lag_s": a.direction_lag_s.and_then(finite),
         "settings": cfg,
         "blocks": blocks,
     })

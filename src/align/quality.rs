@@ -63,7 +63,12 @@ pub struct Figures {
 pub fn judge(f: &Figures, th: &QualityThresholds, band_s: f64) -> (Verdict, Vec<String>) {
     let mut failed = Vec::new();
     let mut doubt = Vec::new();
-    if !f.corr_after.is_finite() || f.corr_after < th.fail_corr {
+    if f.corr_after.is_nan() {
+        failed.push(format!(
+            "no intact feature matches the EMG: every composite activation correlates with its feature below {}",
+            super::block::MIN_FEATURE_CORR
+        ));
+    } else if !f.corr_after.is_finite() || f.corr_after < th.fail_corr {
         failed.push(format!(
             "feature correlation after warping {:.2} is below {:.2}: the sides do not match",
             f.corr_after, th.fail_corr

@@ -4,31 +4,27 @@
 //! Issue target: over all rows of non-rest blocks (holds included), the
 //! median of |intact_time_s − true intact time| at most 15 ms and the 90th
 //! percentile at most 35 ms, in each of at least three scenarios. Four are
-//! here: a drifting lag; a lag varying within cycles (a ±60 ms, 2 s wobble);
-//! a clock offset with the intact hand leading and other EMG and glove rates;
-//! and a lag that depends on the direction of movement (0.1 s longer while
-//! flexing than while extending, so it changes at every reversal and is
-//! steady through holds; EMG 1000 Hz, glove 90 Hz). The drift and offset
-//! scenarios meet it; the wobble and direction scenarios do not, so their
-//! full-target tests are ignored and their figures are pinned instead (see
-//! the direction test for its figures). Why the wobble is not met, as
+//! here: a drifting lag; a clock offset with the intact hand leading and other
+//! EMG and glove rates; a lag that depends on the direction of movement
+//! within every cycle (0.1 s longer while flexing than while extending, so
+//! it changes at every reversal and is steady through holds; EMG 1000 Hz,
+//! glove 90 Hz); and a ±60 ms, 2 s wobble of the lag that runs on regardless
+//! of the movement. The first three meet it. The wobble does not, and its
+//! full-target test is ignored with its figures pinned instead. Why, as
 //! measured:
 //!
 //! - Holds and passive returns carry no timing at all (both sides are still,
-//!   or the EMG is silent), and the ±60 ms, 2 s wobble goes on through them.
-//!   Even with the true lag on every actively moving row and straight lines
-//!   across the rest, the 90th percentile over all non-rest rows of this
-//!   scenario is 34.4 ms: the target leaves no room for any error elsewhere.
-//! - On moving rows the limit is not the envelope noise: a composite built
-//!   from the intact feature through the true map plus the measured residual
-//!   (circularly shifted, so it keeps its level and spectrum but not its
-//!   timing) is tracked to 4–7 ms median in the finger paced and the free
-//!   block. It is the composites, fitted through a map that is itself wrong:
-//!   a non-negative mix of antagonist crosstalk, or of displacement into a
-//!   speed feature, shifts a feature's apparent timing and so keeps part of
-//!   the map's error. With composites fitted through the true map the
-//!   refinement brings the paced blocks to 7–11 ms median; fitted through the
-//!   DTW map, to about 25 ms.
+//!   or the EMG is silent), and the wobble goes on through them. Even with
+//!   the true lag on every actively moving row and straight lines across the
+//!   rest, the 90th percentile over all non-rest rows of this scenario is
+//!   34.4 ms: the target leaves no room for any error elsewhere.
+//! - The aligner's lag model is a slow base (half-gain period
+//!   `refine_period_s`, 8 s) plus a part that follows the direction of
+//!   movement (see `align::refine`). A lag that changes within seconds for
+//!   no reason the movement shows is outside that model. With the settings
+//!   of the earlier model (`refine_period_s = 1.5`, `refine_rounds = 1`,
+//!   `refine_weights = false`, `direction_lag = false`) this scenario reads
+//!   23.5 / 71.3 ms, and the direction scenario 35.0 / 66.5 ms.
 //!
 //! Every scenario also checks that a block that was not mirrored is marked
 //! failed and its rows are unusable.
@@ -37,19 +33,25 @@ use crate::align_support;
 
 use align_support::*;
 use mirrorsite::align::{align, AlignConfig, Aligned, Verdict};
+use mirrorsite::session::Session;
 use mirrorsite::simulate::Truth;
 use std::path::Path;
 
 fn run(name: &str) -> (Aligned, Truth) {
+    run_seeded(name, None).1
+}
+
+fn run_seeded(name: &str, seed: Option<u64>) -> (Session, (Aligned, Truth)) {
     let dir = tempfile::tempdir().unwrap();
-    let (s, truth) = simulate(
+    let (s, truth) = simulate_seeded(
         &Path::new("tests/fixtures/align").join(format!("scenario-{name}.toml")),
         dir.path(),
+        seed,
     );
     let env = signal_envelopes(&s);
     let blocks = s.events.clone().unwrap();
     let al = align(&s, &env, &blocks, &AlignConfig::default()).unwrap();
-    (al, truth)
+    (s, (al, truth))
 }
 
 /// Median and 90th percentile, ms.
@@ -144,11 +146,11 @@ fn drifting_lag() {
     let (all, moving, hold, al) = figures("drift");
     verdicts("drift", &al);
     assert_full_target("drift", all);
-    // Measured: all 11.8 / 31.7 ms; paced+free 9.2 / 23.7 ms; hold-release
-    // 23.3 / 35.9 ms (DTW map alone: 11.7 / 28.9, 8.3 / 24.3 and 21.2 / 34.6 ms;
-    // 106 / 318 ms in hold-release before the speed-toward-rest features).
-    assert!(moving.0 <= 11.0 && moving.1 <= 28.5, "{moving:?}");
-    assert!(hold.0 <= 28.0 && hold.1 <= 43.0, "{hold:?}");
+    // Measured: all 8.1 / 20.9 ms; paced+free 6.7 / 18.0 ms; hold-release
+    // 17.2 / 22.3 ms (the earlier model: 11.8 / 31.7, 9.2 / 23.7 and 23.3 / 35.9 ms).
+    assert!(moving.0 <= 8.5 && moving.1 <= 22.0, "{moving:?}");
+    assert!(hold.0 <= 21.0 && hold.1 <= 27.0, "{hold:?}");
+    direction_lag_near("drift", &al, 0.0, 0.012);
 }
 
 #[test]
@@ -156,27 +158,43 @@ fn clock_offset_leading_intact_hand_and_an_unmirrored_block() {
     let (all, moving, hold, al) = figures("offset");
     verdicts("offset", &al);
     assert_full_target("offset", all);
-    // Measured: all 9.4 / 27.8 ms; paced+free 8.8 / 24.8 ms; hold-release
-    // 14.8 / 52.2 ms (DTW map alone: 10.8 / 25.2, 10.3 / 24.3 and 12.8 / 29.5 ms:
-    // the refinement misplaces the release of one hold by about 80 ms).
-    assert!(moving.0 <= 10.5 && moving.1 <= 30.0, "{moving:?}");
-    assert!(hold.0 <= 18.0 && hold.1 <= 63.0, "{hold:?}");
+    // Measured: all 13.6 / 28.1 ms; paced+free 13.6 / 28.3 ms; hold-release
+    // 14.0 / 26.3 ms (the earlier model: 9.4 / 27.8, 8.8 / 24.8 and 14.8 / 52.2 ms;
+    // the stiffer base lag follows the scenario's ±20 ms, 5 s wobble less).
+    assert!(moving.0 <= 14.5 && moving.1 <= 33.0, "{moving:?}");
+    assert!(hold.0 <= 17.0 && hold.1 <= 32.0, "{hold:?}");
+    direction_lag_near("offset", &al, 0.0, 0.012);
+}
+
+#[test]
+fn a_block_no_feature_matches_is_failed_not_an_error() {
+    // With seed 3 the offset scenario's unmirrored block matches no
+    // composite at all (every correlation below the floor): that used to end
+    // the whole alignment with an error.
+    let (_, (al, _)) = run_seeded("offset", Some(3));
+    verdicts("offset seed 3", &al);
+    let b = al
+        .blocks
+        .iter()
+        .find(|b| b.block.task.contains("unmirrored"))
+        .unwrap();
+    assert_eq!(b.quality, Verdict::Failed);
 }
 
 #[test]
 fn lag_varying_within_cycles() {
     let (all, moving, hold, al) = figures("cycle");
     verdicts("cycle", &al);
-    // Measured: all 23.5 / 71.3 ms; paced+free 20.3 / 56.9 ms; hold-release
-    // 41.7 / 118.5 ms (DTW map alone: 32.3 / 74.0, 31.5 / 71.5 and 35.9 / 84.0 ms).
-    // The ±60 ms, 2 s wobble is tracked only in part (see the ignored test below).
-    assert!(moving.0 <= 24.5 && moving.1 <= 68.0, "{moving:?}");
-    assert!(all.0 <= 28.0 && all.1 <= 86.0, "{all:?}");
-    assert!(hold.0 <= 50.0 && hold.1 <= 142.0, "{hold:?}");
+    // Measured: all 38.3 / 74.2 ms; paced+free 37.3 / 74.5 ms; hold-release
+    // 40.7 / 73.4 ms. The 2 s wobble is outside the lag model (see the module
+    // docs); the pooled direction lag takes up a spurious −18 ms of it.
+    assert!(moving.0 <= 44.0 && moving.1 <= 88.0, "{moving:?}");
+    assert!(all.0 <= 45.0 && all.1 <= 88.0, "{all:?}");
+    assert!(hold.0 <= 48.0 && hold.1 <= 88.0, "{hold:?}");
 }
 
 #[test]
-#[ignore = "not met (23.5 / 71.3 ms): holds and passive returns carry no timing through the 2 s wobble, and composites fitted through an imperfect map bias the lag on moving rows; see the module docs"]
+#[ignore = "not met (38.3 / 74.2 ms): a 2 s wobble of the lag independent of the movement is outside the lag model, and holds carry no timing through it; see the module docs"]
 fn full_target_lag_varying_within_cycles() {
     let (all, _, _, _) = figures("cycle");
     assert_full_target("cycle", all);
@@ -186,20 +204,22 @@ fn full_target_lag_varying_within_cycles() {
 fn lag_depending_on_movement_direction() {
     let (all, moving, hold, al) = figures("direction");
     verdicts("direction", &al);
-    // Measured: all 35.0 / 66.5 ms; paced+free 33.0 / 61.5 ms; hold-release
-    // 41.7 / 77.7 ms; paced alone 39.2 / 63.2 ms. DTW alone gives a lag that is
-    // nearly constant within each paced block (its side-step penalty does not
-    // pay for the ±50 ms switch at every reversal) and the refinement, which
-    // starts from it, follows about half of the swing. The same session
-    // without the direction term: all 9.6 / 38.9 ms, paced 8.5 / 22.2 ms.
-    assert!(moving.0 <= 39.5 && moving.1 <= 74.0, "{moving:?}");
-    assert!(all.0 <= 42.0 && all.1 <= 80.0, "{all:?}");
-    assert!(hold.0 <= 50.0 && hold.1 <= 93.0, "{hold:?}");
+    assert_full_target("direction", all);
+    // Measured: all 11.6 / 29.8 ms; paced+free 11.5 / 28.6 ms; hold-release
+    // 11.7 / 38.7 ms (the earlier model, whose lag had no direction part:
+    // 35.0 / 66.5, 33.0 / 61.5 and 41.7 / 77.7 ms).
+    assert!(moving.0 <= 14.0 && moving.1 <= 34.0, "{moving:?}");
+    assert!(hold.0 <= 14.0 && hold.1 <= 46.0, "{hold:?}");
+    // The simulated direction term is 50 ms; the pooled estimate reads 36 ms.
+    direction_lag_near("direction", &al, 0.045, 0.015);
 }
 
-#[test]
-#[ignore = "not met (35.0 / 66.5 ms): the lag that switches by 0.1 s at every reversal is followed only in part; see lag_depending_on_movement_direction"]
-fn full_target_lag_depending_on_movement_direction() {
-    let (all, _, _, _) = figures("direction");
-    assert_full_target("direction", all);
+/// The session's pooled direction lag lies within `tol` s of `want`.
+fn direction_lag_near(name: &str, al: &Aligned, want: f64, tol: f64) {
+    let eta = al.direction_lag_s.expect("a direction lag estimate");
+    eprintln!("{name}: direction lag {:+.1} ms", eta * 1e3);
+    assert!(
+        (eta - want).abs() <= tol,
+        "{name}: direction lag {eta} s, expected {want} ± {tol} s"
+    );
 }

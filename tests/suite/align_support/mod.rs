@@ -11,7 +11,15 @@ use std::path::Path;
 
 /// Simulates the scenario file into `dir` and reads the session and truth back.
 pub fn simulate(scenario: &Path, dir: &Path) -> (Session, Truth) {
-    let sc = Scenario::from_file(scenario).unwrap();
+    simulate_seeded(scenario, dir, None)
+}
+
+/// As [`simulate`], with the scenario's seed replaced when `seed` is given.
+pub fn simulate_seeded(scenario: &Path, dir: &Path, seed: Option<u64>) -> (Session, Truth) {
+    let mut sc = Scenario::from_file(scenario).unwrap();
+    if let Some(s) = seed {
+        sc.seed = s;
+    }
     let out = dir.join(sc.name.clone());
     let truth_path = dir.join(format!("{}.truth.json", sc.name));
     write_session(&sc, &out, Some(&truth_path), false).unwrap();
