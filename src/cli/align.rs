@@ -55,6 +55,12 @@ pub fn run(args: Args) -> mirrorsite::Result<ExitCode> {
         .iter()
         .filter(|b| b.quality == Verdict::Failed)
         .count();
+    if let Some(eta) = al.direction_lag_s {
+        text.push_str(&format!(
+            "lag while flexing minus lag while extending: {:+.0} ms (pooled over the blocks)\n",
+            2.0 * eta * 1e3
+        ));
+    }
     text.push_str(&format!(
         "{} of {} rows usable; {failed} block(s) failed and left out; written to {}\n",
         al.usable.iter().filter(|&&u| u).count(),

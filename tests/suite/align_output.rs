@@ -74,9 +74,13 @@ fn writes_aligned_csv_json_and_figures() {
         "corr_before",
         "corr_after",
         "share_at_limit",
+        "direction_own_s",
     ] {
         assert!(paced[k].is_number(), "{k}");
     }
+    // The session's pooled direction lag, as `Aligned` holds it (rounded to 1 µs).
+    let eta = json["direction_lag_s"].as_f64().unwrap();
+    assert!((eta - al.direction_lag_s.unwrap()).abs() < 1e-6);
     assert!(al.blocks.iter().any(|b| b.quality == Verdict::Ok));
 
     for f in ["alignment-before.svg", "alignment-after.svg"] {
