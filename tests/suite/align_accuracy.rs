@@ -37,11 +37,11 @@ use mirrorsite::session::Session;
 use mirrorsite::simulate::Truth;
 use std::path::Path;
 
-fn run(name: &str) -> (Aligned, Truth) {
-    run_seeded(name, None).1
+fn run_seeded(name: &str, seed: Option<u64>) -> (Session, (Aligned, Truth)) {
+    run_with(name, seed, &AlignConfig::default())
 }
 
-fn run_seeded(name: &str, seed: Option<u64>) -> (Session, (Aligned, Truth)) {
+fn run_with(name: &str, seed: Option<u64>, cfg: &AlignConfig) -> (Session, (Aligned, Truth)) {
     let dir = tempfile::tempdir().unwrap();
     let (s, truth) = simulate_seeded(
         &Path::new("tests/fixtures/align").join(format!("scenario-{name}.toml")),
@@ -50,7 +50,7 @@ fn run_seeded(name: &str, seed: Option<u64>) -> (Session, (Aligned, Truth)) {
     );
     let env = signal_envelopes(&s);
     let blocks = s.events.clone().unwrap();
-    let al = align(&s, &env, &blocks, &AlignConfig::default()).unwrap();
+    let al = align(&s, &env, &blocks, cfg).unwrap();
     (s, (al, truth))
 }
 
@@ -60,7 +60,11 @@ type Pair = (f64, f64);
 /// (median, p90) in ms over all non-rest mirrored rows, over paced and free
 /// blocks only, and over hold-release blocks only.
 fn figures(name: &str) -> (Pair, Pair, Pair, Aligned) {
-    let (al, truth) = run(name);
+    figures_with(name, &AlignConfig::default())
+}
+
+fn figures_with(name: &str, cfg: &AlignConfig) -> (Pair, Pair, Pair, Aligned) {
+    let (_, (al, truth)) = run_with(name, None, cfg);
     let all = errors(&al, &truth);
     let moving = errors_in(&al, &truth, |t| t == "paced" || t == "free");
     assert!(
@@ -191,6 +195,24 @@ fn lag_varying_within_cycles() {
     assert!(moving.0 <= 44.0 && moving.1 <= 88.0, "{moving:?}");
     assert!(all.0 <= 45.0 && all.1 <= 88.0, "{all:?}");
     assert!(hold.0 <= 48.0 && hold.1 <= 88.0, "{hold:?}");
+}
+
+#[test]
+fn the_earlier_lag_model_remains_available_by_configuration() {
+    // A flexible base without a direction part, one round, the weights kept
+    // from the DTW map: it follows the 2 s wobble better (measured 23.5 / 71.3 ms
+    // on all rows, exactly the figures of the aligner before the direction part).
+    let cfg = AlignConfig {
+        refine_period_s: 1.5,
+        refine_rounds: 1,
+        refine_weights: false,
+        direction_lag: false,
+        ..AlignConfig::default()
+    };
+    let (all, _, _, al) = figures_with("cycle", &cfg);
+    verdicts("cycle, earlier model", &al);
+    assert!(al.direction_lag_s.is_none());
+    assert!(all.0 <= 26.0 && all.1 <= 78.0, "{all:?}");
 }
 
 #[test]
