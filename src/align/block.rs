@@ -26,6 +26,8 @@ pub struct BlockData {
     pub channels: Vec<Channel>,
     /// Extension of the intact grid beyond each end of the window, samples.
     pub ext: usize,
+    /// Whether the block is free movement (its lag's base may change faster).
+    pub free: bool,
 }
 
 /// One alignment channel: an intact-side model of one composite EMG activation.
@@ -597,9 +599,14 @@ fn map_slope(lag: &[f64]) -> Vec<f64> {
 }
 
 fn refine_options(d: &BlockData, cfg: &AlignConfig, r: usize) -> RefineOptions {
+    let period = if d.free {
+        cfg.refine_period_free_s
+    } else {
+        cfg.refine_period_s
+    };
     RefineOptions {
         knot: (cfg.refine_knot_s * d.rate_hz).max(1.0),
-        period: cfg.refine_period_s * d.rate_hz,
+        period: period * d.rate_hz,
         max_lag: r as f64,
         iterations: cfg.refine_iterations,
         tukey_c: cfg.robust_c,

@@ -44,6 +44,8 @@ pub struct AlignConfig {
     pub refine_knot_s: f64,
     /// Half-gain period of the roughness penalty of the refined lag's base, s.
     pub refine_period_s: f64,
+    /// The same in blocks of free movement (task `free`), s.
+    pub refine_period_free_s: f64,
     /// Tukey biweight constant of the refinement's robust weights, in robust residual scales.
     pub robust_c: f64,
     /// Whether the refinement refits the intact features' weights (effort
@@ -79,6 +81,7 @@ impl Default for AlignConfig {
             refine_iterations: 12,
             refine_knot_s: 0.1,
             refine_period_s: 8.0,
+            refine_period_free_s: 3.0,
             robust_c: 4.685,
             refine_weights: true,
             direction_lag: true,
@@ -138,6 +141,7 @@ impl AlignConfig {
         }
         pos(self.refine_knot_s, "refine_knot_s")?;
         pos(self.refine_period_s, "refine_period_s")?;
+        pos(self.refine_period_free_s, "refine_period_free_s")?;
         pos(self.robust_c, "robust_c")?;
         pos(self.direction_smooth_s, "direction_smooth_s")?;
         pos(self.direction_speed_dps, "direction_speed_dps")?;
@@ -229,7 +233,8 @@ band, slope limit, expected electro-mechanical delay, map smoothing and the bloc
         ("refine_rounds", "Rounds of the continuous lag refinement after DTW (composites refitted through the current map with the speed on the EMG clock, then the lag and the intact features' weights fitted to them by penalised Gauss-Newton); 0 keeps the smoothed DTW map. 3 measured best on the simulated accuracy scenarios (median over the drift, offset and direction scenarios 7.8-14.1 ms with 1 round, 8.1-13.6 ms with 3; 90th percentile on the direction scenario 35.4 and 29.8 ms)."),
         ("refine_iterations", "Gauss-Newton iterations per refinement round (Levenberg-damped; Nocedal & Wright 2006, ch. 10)."),
         ("refine_knot_s", "Knot spacing in s of the cubic B-spline lag curve of the refinement."),
-        ("refine_period_s", "Half-gain period in s of the second-difference penalty on the base of the refined lag (P-splines, Eilers & Marx 1996): base changes faster than this are damped, flat stretches (holds) are bridged from the moves on either side; changes with the direction of movement go to the direction part. Chosen on the simulated accuracy scenarios: 8 s meets the target on the drift, offset and direction scenarios; 1.5 s (with direction_lag = false, refine_rounds = 1, refine_weights = false) follows a lag that wobbles within seconds regardless of the movement better (23.5 against 38.3 ms median) but a direction-dependent lag much worse (35.0 against 11.6 ms)."),
+        ("refine_period_s", "Half-gain period in s of the second-difference penalty on the base of the refined lag (P-splines, Eilers & Marx 1996) in paced and hold-release blocks: base changes faster than this are damped, holds are bridged from the moves on either side; changes with the direction of movement go to the direction part. In a steady oscillation a faster base would trade with the feature weights (a constant timing error hides in the mix of speed and displacement), and across holds it would bend with nothing to hold it. Chosen on the simulated accuracy scenarios (8 s; 3-5 s lose the direction scenario's 90th percentile, 1.5 s everywhere loses the hold-release blocks)."),
+        ("refine_period_free_s", "The same in blocks of free movement (task free): varied, continuous movement pins the timing well, so the base may follow faster changes there. Chosen on the simulated scenarios over seeds 1-8 and the demo: 3 s met the target in 18 of 24 scenario sessions and on the demo (14.8 / 32.1 ms); 8 s in 19 of 24 but not on the demo (19.7 / 35.5 ms); 1.5 s in 16 of 24 (demo 11.6 / 33.1 ms)."),
         ("refine_weights", "Refit the intact features' weights (effort per position, holding, intercept) jointly with the lag in the refinement; false keeps those fitted through the DTW map, which keep part of that map's error."),
         ("direction_lag", "Give the lag a part that follows the direction of the hand's movement (lag = base + eta while flexing, base - eta while extending, base while still), with eta pooled over the session's blocks by their information; alignment.json reports it as direction_lag_s."),
         ("direction_smooth_s", "Moving-average width in s that smooths the direction of movement (+1 flexing, -1 extending): how gradually the direction part switches at a reversal. 0.3 and 0.5 s measured alike on the simulated scenarios."),

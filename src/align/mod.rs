@@ -28,7 +28,10 @@
 //!    ρ²/(1 − ρ²) (ρ the composite's correlation with its intact feature),
 //!    so a channel the sites explain poorly does not bend the lag. The lag
 //!    is a slow base (cubic P-spline, half-gain period `refine_period_s`,
-//!    8 s) plus a direction part η·D(t): D is the smoothed direction of the
+//!    8 s, in paced and hold-release blocks, where a faster base would trade
+//!    with the feature weights or bend across holds; `refine_period_free_s`,
+//!    3 s, in free movement, which pins the timing better) plus a direction
+//!    part η·D(t): D is the smoothed direction of the
 //!    hand's movement on the intact side (+1 flexing, −1 extending, 0 still),
 //!    so the lag may differ between the two directions, switch at every
 //!    reversal and return to its base through holds, without a roughness
@@ -392,6 +395,7 @@ pub fn align(s: &Session, env: &Envelopes, blocks: &[Block], cfg: &AlignConfig) 
             env: site_rows,
             channels,
             ext,
+            free: b.is_free(),
         };
         out_blocks.push(BlockAlignment {
             block: b.clone(),

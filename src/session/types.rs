@@ -153,6 +153,11 @@ impl Block {
         self.task.eq_ignore_ascii_case("rest")
     }
 
+    /// True for a block of free movement (task `free`).
+    pub fn is_free(&self) -> bool {
+        self.task.eq_ignore_ascii_case("free")
+    }
+
     /// The DoF id as written in events.csv (`*` for none).
     pub fn dof_label(&self) -> &str {
         self.dof.as_deref().unwrap_or("*")
