@@ -243,6 +243,17 @@ fn second_difference_times(theta: &[f64]) -> Vec<f64> {
     out
 }
 
+/// Slope per sample of a series by central differences (one-sided at the ends).
+fn central_slope(v: &[f64]) -> Vec<f64> {
+    let n = v.len();
+    (0..n)
+        .map(|i| {
+            let (a, b) = (i.saturating_sub(1), (i + 1).min(n.saturating_sub(1)));
+            (v[b] - v[a]) / (b - a).max(1) as f64
+        })
+        .collect()
+}
+
 /// Value and derivative (per sample) of a series at fractional index x.
 fn value_slope(f: &[f64], x: f64) -> (f64, f64) {
     (
@@ -309,12 +320,7 @@ pub fn refine(
     } else {
         vec![0.0; n]
     };
-    let known_der: Vec<f64> = (0..n)
-        .map(|i| {
-            let (a, b) = (i.saturating_sub(1), (i + 1).min(n - 1));
-            (known[b] - known[a]) / (b - a).max(1) as f64
-        })
-        .collect();
+    let known_der = central_slope(&known);
     let lay = Layout::new(n, o.knot.max(1.0));
     let free: Vec<f64> = lag0.iter().zip(&known).map(|(l, k)| l - k).collect();
     let Some(theta0) = lay.fit(&free) else {
@@ -325,18 +331,7 @@ pub fn refine(
     let p = if fit_weights { gamma0.len() } else { 0 };
     let e_n = m + p;
     let intercepts: Vec<usize> = ch.iter().map(|c| c.intercept).collect();
-    // Regressor slopes per sample (central differences).
-    let reg_der: Vec<Vec<f64>> = regs
-        .iter()
-        .map(|r| {
-            (0..n)
-                .map(|i| {
-                    let (a, b) = (i.saturating_sub(1), (i + 1).min(n - 1));
-                    (r[b] - r[a]) / (b - a).max(1) as f64
-                })
-                .collect()
-        })
-        .collect();
+    let reg_der: Vec<Vec<f64>> = regs.iter().map(|r| central_slope(r)).collect();
     let mut par: Vec<f64> = theta0.into_iter().chain(vec![0.0; m]).collect();
     let mut gamma = gamma0.to_vec();
     let eval = |par: &[f64]| -> (Vec<f64>, Vec<f64>) {
@@ -602,6 +597,30 @@ struct Normal {
 mod tests {
     use super::*;
 
+    /// One channel: basis 0 is its speed (weight γ₀), basis 1 its displacement (γ₁), γ₂ its intercept.
+    fn one_channel<'a>(composite: &'a [f64], basis: &'a [Vec<f64>]) -> RefineChannel<'a> {
+        RefineChannel {
+            composite,
+            basis,
+            index: &[0, 1],
+            speed_terms: 1,
+            intercept: 2,
+            weight: 1.0,
+        }
+    }
+
+    /// Knots every 10 samples, the given penalty period, no robust weights.
+    fn options(period: f64) -> RefineOptions {
+        RefineOptions {
+            knot: 10.0,
+            period,
+            max_lag: 30.0,
+            iterations: 40,
+            tukey_c: f64::INFINITY,
+            scale_floor: 0.0,
+        }
+    }
+
     #[test]
     fn cubic_basis_is_a_partition_of_unity_with_matching_derivatives() {
         // Uniform cubic B-spline values at the knot: 1/6, 2/3, 1/6 (de Boor 1978, ch. IX).
@@ -642,22 +661,8 @@ mod tests {
             })
             .collect();
         let basis = [speed, level];
-        let ch = [RefineChannel {
-            composite: &composite,
-            basis: &basis,
-            index: &[0, 1],
-            speed_terms: 1,
-            intercept: 2,
-            weight: 1.0,
-        }];
-        let o = RefineOptions {
-            knot: 10.0,
-            period: 30.0,
-            max_lag: 30.0,
-            iterations: 40,
-            tukey_c: f64::INFINITY,
-            scale_floor: 0.0,
-        };
+        let ch = [one_channel(&composite, &basis)];
+        let o = options(30.0);
         let lag = refine(
             &ch,
             ext,
@@ -699,22 +704,8 @@ mod tests {
             })
             .collect();
         let regs = vec![(0..n).map(|i| dir(i as f64)).collect::<Vec<_>>()];
-        let ch = [RefineChannel {
-            composite: &composite,
-            basis: &basis,
-            index: &[0, 1],
-            speed_terms: 1,
-            intercept: 2,
-            weight: 1.0,
-        }];
-        let o = RefineOptions {
-            knot: 10.0,
-            period: 200.0,
-            max_lag: 30.0,
-            iterations: 40,
-            tukey_c: f64::INFINITY,
-            scale_floor: 0.0,
-        };
+        let ch = [one_channel(&composite, &basis)];
+        let o = options(200.0);
         let parts = LagParts {
             regressors: &regs,
             known: &[],
