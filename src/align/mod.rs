@@ -179,6 +179,8 @@ pub struct Aligned {
     pub usable: Vec<bool>,
     /// Per-block alignment.
     pub blocks: Vec<BlockAlignment>,
+    /// Lag (intact time on the EMG clock − EMG time) of each row, s.
+    pub lag_s: Vec<f64>,
     /// The session's direction lag η, s: the lag is its smooth base + η
     /// while the hand flexes and − η while it extends (absent when the
     /// direction part is off or no block could estimate it).
@@ -523,6 +525,7 @@ pub fn align(s: &Session, env: &Envelopes, blocks: &[Block], cfg: &AlignConfig) 
         block_of,
         usable,
         blocks: out_blocks,
+        lag_s: lag,
         direction_lag_s: pooled,
     })
 }

@@ -192,15 +192,89 @@ pub fn block_svg(b: &BlockAlignment, after: bool) -> Result<String> {
     Ok(out)
 }
 
-/// Writes `aligned.csv`, `alignment.json` and `figures/alignment-before.svg`,
-/// `figures/alignment-after.svg` into `dir` (which must exist).
+/// SVG of the lag over the whole session: intact time (on the EMG clock)
+/// minus EMG time, in ms, against EMG time, with every task block shaded by
+/// its verdict (ok, doubtful, failed) and rests left white. Rows are thinned
+/// to at most 4000 points.
+pub fn lag_svg(a: &Aligned) -> Result<String> {
+    let n = a.len();
+    if n < 2 {
+        return Err(Error::Analysis("no rows to plot".into()));
+    }
+    let stride = n.div_ceil(4000).max(1);
+    let pts: Vec<(f64, f64)> = (0..n)
+        .step_by(stride)
+        .map(|i| (a.time_s[i], a.lag_s[i] * 1e3))
+        .collect();
+    let (lo, hi) = pts
+        .iter()
+        .fold((f64::INFINITY, f64::NEG_INFINITY), |(l, h), p| {
+            (l.min(p.1), h.max(p.1))
+        });
+    let pad = ((hi - lo) * 0.1).max(5.0);
+    let (t0, t1) = (a.time_s[0], a.time_s[n - 1]);
+    let mut out = String::new();
+    {
+        let root = SVGBackend::with_string(&mut out, (900, 320)).into_drawing_area();
+        fn e<E: std::fmt::Debug>(x: E) -> Error {
+            Error::Analysis(format!("figure: {x:?}"))
+        }
+        root.fill(&WHITE).map_err(e)?;
+        let title = match a.direction_lag_s {
+            Some(eta) => format!(
+                "lag over the session (flexing minus extending {:+.0} ms)",
+                2.0 * eta * 1e3
+            ),
+            None => "lag over the session".to_string(),
+        };
+        let mut chart = ChartBuilder::on(&root)
+            .caption(title, ("sans-serif", 18))
+            .margin(10)
+            .x_label_area_size(36)
+            .y_label_area_size(52)
+            .build_cartesian_2d(t0..t1.max(t0 + 1e-3), (lo - pad)..(hi + pad))
+            .map_err(e)?;
+        chart
+            .configure_mesh()
+            .x_desc("EMG time (s); shaded: task blocks (blue ok, yellow doubtful, grey failed)")
+            .y_desc("intact − EMG time (ms)")
+            .draw()
+            .map_err(e)?;
+        let shade = |q: super::Verdict| match q {
+            super::Verdict::Ok => RGBColor(214, 230, 245),
+            super::Verdict::Doubtful => RGBColor(250, 236, 200),
+            super::Verdict::Failed => RGBColor(222, 222, 222),
+        };
+        chart
+            .draw_series(a.blocks.iter().filter(|b| !b.block.is_rest()).map(|b| {
+                Rectangle::new(
+                    [(b.block.start_s, lo - pad), (b.block.end_s, hi + pad)],
+                    shade(b.quality).filled(),
+                )
+            }))
+            .map_err(e)?;
+        chart
+            .draw_series(LineSeries::new(pts, BLACK.stroke_width(2)))
+            .map_err(e)?;
+        root.present().map_err(e)?;
+    }
+    Ok(out)
+}
+
+/// Writes `aligned.csv`, `alignment.json`, `figures/alignment-lag.svg` and
+/// `figures/alignment-before.svg`, `figures/alignment-after.svg` into `dir`
+/// (which must exist).
 pub fn write_all(dir: &Path, a: &Aligned, cfg: &super::AlignConfig) -> Result<()> {
     write_file_atomic(&dir.join("aligned.csv"), aligned_csv(a).as_bytes())?;
     let json = serde_json::to_string_pretty(&alignment_json(a, cfg))
         .map_err(|e| Error::Analysis(e.to_string()))?;
     write_file_atomic(&dir.join("alignment.json"), json.as_bytes())?;
+    let fig = dir.join("figures");
+    if a.len() >= 2 {
+        std::fs::create_dir_all(&fig).map_err(|e| Error::io(&fig, e))?;
+        write_file_atomic(&fig.join("alignment-lag.svg"), lag_svg(a)?.as_bytes())?;
+    }
     if let Some(b) = figure_block(a) {
-        let fig = dir.join("figures");
         std::fs::create_dir_all(&fig).map_err(|e| Error::io(&fig, e))?;
         write_file_atomic(
             &fig.join("alignment-before.svg"),

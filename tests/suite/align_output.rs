@@ -83,7 +83,11 @@ fn writes_aligned_csv_json_and_figures() {
     assert!((eta - al.direction_lag_s.unwrap()).abs() < 1e-6);
     assert!(al.blocks.iter().any(|b| b.quality == Verdict::Ok));
 
-    for f in ["alignment-before.svg", "alignment-after.svg"] {
+    for f in [
+        "alignment-before.svg",
+        "alignment-after.svg",
+        "alignment-lag.svg",
+    ] {
         let svg = std::fs::read_to_string(out.join("figures").join(f)).unwrap();
         assert!(
             svg.starts_with("<svg") && svg.contains("polyline") || svg.contains("path"),
