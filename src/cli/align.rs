@@ -56,9 +56,23 @@ pub fn run(args: Args) -> mirrorsite::Result<ExitCode> {
         .filter(|b| b.quality == Verdict::Failed)
         .count();
     if let Some(eta) = al.direction_lag_s {
+        // The blocks' own values show how well the session pins it down.
+        let own: Vec<f64> = al
+            .blocks
+            .iter()
+            .filter(|b| b.quality != Verdict::Failed)
+            .filter_map(|b| b.direction_own_s)
+            .map(|v| 2.0 * v * 1e3)
+            .collect();
+        let (lo, hi) = own
+            .iter()
+            .fold((f64::INFINITY, f64::NEG_INFINITY), |(l, h), &v| {
+                (l.min(v), h.max(v))
+            });
         text.push_str(&format!(
-            "lag while flexing minus lag while extending: {:+.0} ms (pooled over the blocks)\n",
-            2.0 * eta * 1e3
+            "lag while flexing minus lag while extending: {:+.0} ms, pooled over {} block(s) whose own values range {lo:+.0} to {hi:+.0} ms\n",
+            2.0 * eta * 1e3,
+            own.len()
         ));
     }
     text.push_str(&format!(
