@@ -6,6 +6,9 @@
 
 #![allow(clippy::needless_range_loop)] // index loops mirror the formulas
 
+use crate::select::cholesky_lower;
+use faer::Mat;
+
 /// A symmetric banded matrix (lower half stored by diagonals) with a Cholesky solve.
 #[derive(Clone)]
 pub struct Banded {
@@ -107,24 +110,17 @@ impl Banded {
         b: &[f64],
         c: &[f64],
     ) -> Option<(Vec<f64>, Vec<f64>)> {
-        let m = border.len();
-        let f = self.cholesky()?;
-        let ab = f.solve(b);
-        if m == 0 {
-            return Some((ab, Vec::new()));
+        let (f, a_inv_b, schur) = self.eliminate(border, corner)?;
+        let mut x = f.solve(b);
+        if border.is_empty() {
+            return Some((x, Vec::new()));
         }
-        let a_inv_b: Vec<Vec<f64>> = border.iter().map(|col| f.solve(col)).collect();
-        let dot = |u: &[f64], v: &[f64]| u.iter().zip(v).map(|(a, b)| a * b).sum::<f64>();
-        let mut schur: Vec<f64> = corner.to_vec();
-        let mut rhs: Vec<f64> = c.to_vec();
-        for p in 0..m {
-            rhs[p] -= dot(&border[p], &ab);
-            for q in 0..m {
-                schur[p * m + q] -= dot(&border[p], &a_inv_b[q]);
-            }
-        }
-        let y = dense_cholesky_solve(&schur, &rhs, m)?;
-        let mut x = ab;
+        let rhs: Vec<f64> = border
+            .iter()
+            .zip(c)
+            .map(|(col, ci)| ci - dot(col, &x))
+            .collect();
+        let y = dense_cholesky_solve(&schur, &rhs, border.len())?;
         for (q, col) in a_inv_b.iter().enumerate() {
             for (xi, v) in x.iter_mut().zip(col) {
                 *xi -= y[q] * v;
@@ -132,23 +128,34 @@ impl Banded {
         }
         Some((x, y))
     }
-}
 
-impl Banded {
     /// The Schur complement S = C − BᵀA⁻¹B of this matrix A in the bordered
     /// matrix [A B; Bᵀ C] (see [`Banded::solve_bordered`]), row-major m × m.
     pub fn schur(&self, border: &[Vec<f64>], corner: &[f64]) -> Option<Vec<f64>> {
+        Some(self.eliminate(border, corner)?.2)
+    }
+
+    /// Block elimination of the border: the factor of A, A⁻¹B by columns, and S.
+    fn eliminate(
+        &self,
+        border: &[Vec<f64>],
+        corner: &[f64],
+    ) -> Option<(BandedFactor, Vec<Vec<f64>>, Vec<f64>)> {
         let m = border.len();
         let f = self.cholesky()?;
-        let mut s = corner.to_vec();
-        for q in 0..m {
-            let x = f.solve(&border[q]);
-            for p in 0..m {
-                s[p * m + q] -= border[p].iter().zip(&x).map(|(a, b)| a * b).sum::<f64>();
+        let a_inv_b: Vec<Vec<f64>> = border.iter().map(|col| f.solve(col)).collect();
+        let mut schur = corner.to_vec();
+        for p in 0..m {
+            for q in 0..m {
+                schur[p * m + q] -= dot(&border[p], &a_inv_b[q]);
             }
         }
-        Some(s)
+        Some((f, a_inv_b, schur))
     }
+}
+
+fn dot(u: &[f64], v: &[f64]) -> f64 {
+    u.iter().zip(v).map(|(a, b)| a * b).sum()
 }
 
 /// A banded Cholesky factor, reusable for several right-hand sides.
@@ -179,39 +186,23 @@ impl BandedFactor {
     }
 }
 
-/// Solves the small dense symmetric positive definite system S y = r (row-major m × m) by Cholesky.
+/// Solves the small dense symmetric positive definite system S y = r
+/// (row-major m × m): the Cholesky factor of [`crate::select::cholesky_lower`],
+/// then forward and back substitution. `None` when S is not positive definite.
 pub fn dense_cholesky_solve(s: &[f64], r: &[f64], m: usize) -> Option<Vec<f64>> {
-    let mut l = vec![0.0; m * m];
-    for j in 0..m {
-        let mut d = s[j * m + j];
-        for k in 0..j {
-            d -= l[j * m + k] * l[j * m + k];
-        }
-        if !(d > 0.0 && d.is_finite()) {
-            return None;
-        }
-        let d = d.sqrt();
-        l[j * m + j] = d;
-        for i in j + 1..m {
-            let mut v = s[i * m + j];
-            for k in 0..j {
-                v -= l[i * m + k] * l[j * m + k];
-            }
-            l[i * m + j] = v / d;
-        }
-    }
+    let l = cholesky_lower(&Mat::from_fn(m, m, |i, j| s[i * m + j]))?;
     let mut y = r.to_vec();
     for i in 0..m {
         for k in 0..i {
-            y[i] -= l[i * m + k] * y[k];
+            y[i] -= l[(i, k)] * y[k];
         }
-        y[i] /= l[i * m + i];
+        y[i] /= l[(i, i)];
     }
     for i in (0..m).rev() {
         for k in i + 1..m {
-            y[i] -= l[k * m + i] * y[k];
+            y[i] -= l[(k, i)] * y[k];
         }
-        y[i] /= l[i * m + i];
+        y[i] /= l[(i, i)];
     }
     Some(y)
 }

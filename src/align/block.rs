@@ -135,6 +135,83 @@ fn stacked_corr(a: &[Vec<f64>], b: &[Vec<f64>], r: (usize, usize)) -> f64 {
     pearson(&x, &y)
 }
 
+/// A series on the extended grid read through `lag` at every window sample:
+/// f(i + ext + ℓ_i).
+fn through(d: &BlockData, lag: &[f64], f: &[f64]) -> Vec<f64> {
+    (0..d.n)
+        .map(|i| lerp_at(f, (i + d.ext) as f64 + lag[i]))
+        .collect()
+}
+
+/// The band radius r (samples) and the DTW options of a block.
+fn dtw_setup(d: &BlockData, cfg: &AlignConfig) -> Result<(usize, DtwOptions)> {
+    let r = (cfg.band_s * d.rate_hz).round().max(1.0) as usize;
+    let opts = DtwOptions {
+        band: Some(r.min(d.n.saturating_sub(1)).max(1)),
+        pattern: StepPattern::from_max_slope(cfg.max_slope)?,
+        path: true,
+        side_penalty: cfg.side_penalty,
+        open_ends: true,
+    };
+    Ok((r, opts))
+}
+
+/// Median, interquartile range and 10th / 90th percentiles of the lag (s)
+/// over the block proper.
+fn lag_spread(d: &BlockData, lag: &[f64]) -> (f64, f64, [f64; 2]) {
+    let lag_in: Vec<f64> = lag[d.interior.0..d.interior.1]
+        .iter()
+        .map(|l| l / d.rate_hz)
+        .collect();
+    (
+        quantile(&lag_in, 0.5),
+        quantile(&lag_in, 0.75) - quantile(&lag_in, 0.25),
+        [quantile(&lag_in, 0.1), quantile(&lag_in, 0.9)],
+    )
+}
+
+/// Where each channel's basis weights sit in the refinement's weight vector
+/// γ: per DoF (channel pair) the shared speed-effort weights, then each
+/// direction's own displacement weights, then the two intercepts.
+struct WeightLayout {
+    /// γ index of every basis series, per channel.
+    index: Vec<Vec<usize>>,
+    /// Weights per channel pair.
+    per_pair: usize,
+}
+
+impl WeightLayout {
+    fn new(basis: &[Vec<Vec<f64>>]) -> Self {
+        let nb = basis_len(basis);
+        let per_pair = 2 * nb - SHARED + 2;
+        let index = (0..basis.len())
+            .map(|c| {
+                let (base, side) = ((c / 2) * per_pair, c % 2);
+                (0..nb)
+                    .map(|m| {
+                        if m < SHARED {
+                            base + m
+                        } else {
+                            base + SHARED + side * (nb - SHARED) + (m - SHARED)
+                        }
+                    })
+                    .collect()
+            })
+            .collect();
+        WeightLayout { index, per_pair }
+    }
+
+    /// γ index of channel c's intercept.
+    fn intercept(&self, c: usize) -> usize {
+        (c / 2) * self.per_pair + self.per_pair - 2 + c % 2
+    }
+
+    /// Length of γ for `nc` channels.
+    fn len(&self, nc: usize) -> usize {
+        nc.div_ceil(2) * self.per_pair
+    }
+}
+
 /// A block after its DTW rounds: the part of the work that does not depend
 /// on the direction lag, shared by both passes of [`super::align`].
 pub struct Warped {
@@ -154,16 +231,8 @@ pub struct Warped {
 /// fitted through the map and warped again, `rounds` times.
 pub fn warp_block(d: &BlockData, cfg: &AlignConfig) -> Result<Warped> {
     let n = d.n;
-    let r = (cfg.band_s * d.rate_hz).round().max(1.0) as usize;
+    let (r, opts) = dtw_setup(d, cfg)?;
     let ma = odd(cfg.feature_smooth_s * d.rate_hz);
-    let pattern = StepPattern::from_max_slope(cfg.max_slope)?;
-    let opts = DtwOptions {
-        band: Some(r.min(n.saturating_sub(1)).max(1)),
-        pattern,
-        path: true,
-        side_penalty: cfg.side_penalty,
-        open_ends: true,
-    };
     let len = n + 2 * d.ext;
     let basis: Vec<Vec<Vec<f64>>> = d
         .channels
@@ -171,11 +240,6 @@ pub fn warp_block(d: &BlockData, cfg: &AlignConfig) -> Result<Warped> {
         .map(|c| c.basis.iter().map(|f| moving_average(f, ma)).collect())
         .collect();
     let env: Vec<Vec<f64>> = d.env.iter().map(|e| moving_average(e, ma)).collect();
-    let at = |lag: &[f64], f: &[f64]| -> Vec<f64> {
-        (0..n)
-            .map(|i| lerp_at(f, (i + d.ext) as f64 + lag[i]))
-            .collect()
-    };
     // Coarse constant lag: total activity against total intact speed.
     let total_env = standard_sum(&env, n);
     let speed = standard_sum(
@@ -189,7 +253,7 @@ pub fn warp_block(d: &BlockData, cfg: &AlignConfig) -> Result<Warped> {
     let reach = r.min(d.ext) as i64;
     for l in -reach..=reach {
         let lag = vec![l as f64; n];
-        let c = pearson(&total_env, &at(&lag, &speed));
+        let c = pearson(&total_env, &through(d, &lag, &speed));
         if c.is_finite() && c > best.0 {
             best = (c, l as f64);
         }
@@ -236,56 +300,26 @@ pub fn align_block(
     direction: Option<f64>,
 ) -> Result<BlockOutcome> {
     let n = d.n;
-    let r = (cfg.band_s * d.rate_hz).round().max(1.0) as usize;
-    let opts = DtwOptions {
-        band: Some(r.min(n.saturating_sub(1)).max(1)),
-        pattern: StepPattern::from_max_slope(cfg.max_slope)?,
-        path: true,
-        side_penalty: cfg.side_penalty,
-        open_ends: true,
-    };
+    let (r, opts) = dtw_setup(d, cfg)?;
     let len = n + 2 * d.ext;
     let nc = d.channels.len();
     let (basis, env) = (&w.basis, &w.env);
     let mut lag = w.lag.clone();
     let (mut composite, mut intact, mut scale) =
         (w.composite.clone(), w.intact.clone(), w.scale.clone());
-    let at = |lag: &[f64], f: &[f64]| -> Vec<f64> {
-        (0..n)
-            .map(|i| lerp_at(f, (i + d.ext) as f64 + lag[i]))
-            .collect()
-    };
     // Continuous refinement: composites refitted through the map with the
     // speed on the EMG clock, then a smooth lag fitted to them (see [`refine`]).
     let mut estimate = None;
     if cfg.refine_rounds > 0 && scale.iter().any(|&v| v > 0.0) {
         let ropts = refine_options(d, cfg, r);
+        let layout = WeightLayout::new(basis);
         for _round in 0..cfg.refine_rounds {
             let slope = map_slope(&lag);
             let fit = fit_channels(d, basis, env, &lag, Some(&slope));
-            // Weights γ: per DoF (channel pair) the shared speed-effort
-            // weights, each direction's own displacement weights and intercept.
-            let per_pair = 2 * basis_len(basis) - SHARED + 2;
-            let nb: Vec<usize> = basis.iter().map(Vec::len).collect();
-            let index: Vec<Vec<usize>> = (0..nc)
-                .map(|c| {
-                    let (base, side) = ((c / 2) * per_pair, c % 2);
-                    (0..nb[c])
-                        .map(|m| {
-                            if m < SHARED {
-                                base + m
-                            } else {
-                                base + SHARED + side * (nb[c] - SHARED) + (m - SHARED)
-                            }
-                        })
-                        .collect()
-                })
-                .collect();
-            let intercept = |c: usize| (c / 2) * per_pair + per_pair - 2 + c % 2;
-            let mut gamma0 = vec![0.0; nc.div_ceil(2) * per_pair];
+            let mut gamma0 = vec![0.0; layout.len(nc)];
             let mut weight = vec![0.0; nc];
             for c in 0..nc {
-                for (m, &j) in index[c].iter().enumerate() {
+                for (m, &j) in layout.index[c].iter().enumerate() {
                     gamma0[j] = fit.beta[c][m];
                 }
                 let (sp, lv) = split_parts(&basis[c], &fit.beta[c], len);
@@ -297,7 +331,7 @@ pub fn align_block(
                     .collect();
                 let (mm, sd) = mean_sd(&model);
                 let (ma, _) = mean_sd(&fit.composite[c]);
-                gamma0[intercept(c)] = ma - mm;
+                gamma0[layout.intercept(c)] = ma - mm;
                 // Signal-to-misfit weight ρ²/(1 − ρ²) per unit of feature variance.
                 let rho2 = fit.scale[c].powi(2).min(0.999);
                 weight[c] = if sd > 1e-12 {
@@ -310,9 +344,9 @@ pub fn align_block(
                 .map(|c| RefineChannel {
                     composite: &fit.composite[c],
                     basis: &basis[c],
-                    index: &index[c],
+                    index: &layout.index[c],
                     speed_terms: SHARED,
-                    intercept: intercept(c),
+                    intercept: layout.intercept(c),
                     weight: weight[c],
                 })
                 .collect();
@@ -353,18 +387,15 @@ pub fn align_block(
     if used.is_empty() {
         // No intact feature matches any non-negative mix of the sites: there
         // is nothing to warp, and the NaN correlations fail the block.
-        let lag_in: Vec<f64> = lag[d.interior.0..d.interior.1]
-            .iter()
-            .map(|l| l / d.rate_hz)
-            .collect();
+        let (median, iqr, p10_p90) = lag_spread(d, &lag);
         return Ok(BlockOutcome {
             labels: Vec::new(),
             lag,
             direction: None,
             figures: Figures {
-                lag_median_s: quantile(&lag_in, 0.5),
-                lag_iqr_s: quantile(&lag_in, 0.75) - quantile(&lag_in, 0.25),
-                lag_p10_p90_s: [quantile(&lag_in, 0.1), quantile(&lag_in, 0.9)],
+                lag_median_s: median,
+                lag_iqr_s: iqr,
+                lag_p10_p90_s: p10_p90,
                 corr_before: f64::NAN,
                 corr_after: f64::NAN,
                 corr_null: f64::NAN,
@@ -380,18 +411,15 @@ pub fn align_block(
     let (composite, intact) = (scaled(&pick(&composite), &sc), scaled(&pick(&intact), &sc));
     let labels = used.iter().map(|&c| d.channels[c].label.clone()).collect();
     let zero = vec![0.0; n];
-    let intact_before: Vec<Vec<f64>> = intact.iter().map(|f| at(&zero, f)).collect();
-    let intact_after: Vec<Vec<f64>> = intact.iter().map(|f| at(&lag, f)).collect();
+    let intact_before: Vec<Vec<f64>> = intact.iter().map(|f| through(d, &zero, f)).collect();
+    let intact_after: Vec<Vec<f64>> = intact.iter().map(|f| through(d, &lag, f)).collect();
     let corr_before = stacked_corr(&composite, &intact_before, d.interior);
     let corr_after = stacked_corr(&composite, &intact_after, d.interior);
 
     // Null: the same composites warped onto an unrelated stretch of the intact side.
     let corr_null = null_corr(d, &composite, &intact, &opts, cfg, r)?;
 
-    let lag_in: Vec<f64> = lag[d.interior.0..d.interior.1]
-        .iter()
-        .map(|l| l / d.rate_hz)
-        .collect();
+    let (median, iqr, p10_p90) = lag_spread(d, &lag);
     let limit_share = {
         let w = dtw_rows(
             &rows(&composite, n),
@@ -411,9 +439,9 @@ pub fn align_block(
         inside.iter().filter(|&&l| l).count() as f64 / inside.len().max(1) as f64
     };
     let figures = Figures {
-        lag_median_s: quantile(&lag_in, 0.5),
-        lag_iqr_s: quantile(&lag_in, 0.75) - quantile(&lag_in, 0.25),
-        lag_p10_p90_s: [quantile(&lag_in, 0.1), quantile(&lag_in, 0.9)],
+        lag_median_s: median,
+        lag_iqr_s: iqr,
+        lag_p10_p90_s: p10_p90,
         corr_before,
         corr_after,
         corr_null,
@@ -630,10 +658,7 @@ fn direction_regressor(d: &BlockData, cfg: &AlignConfig, lag: &[f64]) -> Vec<f64
         }
     }
     raw.iter_mut().for_each(|v| *v = v.clamp(-1.0, 1.0));
-    let sm = moving_average(&raw, w);
-    (0..d.n)
-        .map(|i| lerp_at(&sm, (i + d.ext) as f64 + lag[i]))
-        .collect()
+    through(d, lag, &moving_average(&raw, w))
 }
 
 /// Slope limits and the band on a refined lag.
@@ -768,13 +793,6 @@ fn null_corr(
         })
         .collect();
     let lag = warp(d, composite, &shifted, opts, cfg, r)?;
-    let after: Vec<Vec<f64>> = shifted
-        .iter()
-        .map(|f| {
-            (0..n)
-                .map(|i| lerp_at(f, (i + d.ext) as f64 + lag[i]))
-                .collect()
-        })
-        .collect();
+    let after: Vec<Vec<f64>> = shifted.iter().map(|f| through(d, &lag, f)).collect();
     Ok(stacked_corr(composite, &after, d.interior))
 }

@@ -179,8 +179,9 @@ pub struct Aligned {
     pub usable: Vec<bool>,
     /// Per-block alignment.
     pub blocks: Vec<BlockAlignment>,
-    /// Lag (intact time on the EMG clock − EMG time) of each row, s.
-    pub lag_s: Vec<f64>,
+    /// The session's `intact.offset_s`: intact time on the EMG clock is
+    /// `intact_time_s + intact_offset_s`.
+    pub intact_offset_s: f64,
     /// The session's direction lag η, s: the lag is its smooth base + η
     /// while the hand flexes and − η while it extends (absent when the
     /// direction part is off or no block could estimate it).
@@ -188,6 +189,11 @@ pub struct Aligned {
 }
 
 impl Aligned {
+    /// Lag of row i (intact time on the EMG clock − EMG time), s.
+    pub fn lag_at(&self, i: usize) -> f64 {
+        self.intact_time_s[i] + self.intact_offset_s - self.time_s[i]
+    }
+
     /// Number of rows.
     pub fn len(&self) -> usize {
         self.time_s.len()
@@ -411,8 +417,6 @@ pub fn align(s: &Session, env: &Envelopes, blocks: &[Block], cfg: &AlignConfig) 
         pending.push(Pending {
             slot: out_blocks.len() - 1,
             data,
-            start: a,
-            end: e,
             w0,
         });
     }
@@ -448,7 +452,8 @@ pub fn align(s: &Session, env: &Envelopes, blocks: &[Block], cfg: &AlignConfig) 
         outcomes = pass(Some(eta))?;
     }
     for (p, o) in pending.iter().zip(outcomes) {
-        let (a, e, w0, wn) = (p.start, p.end, p.w0, p.data.n);
+        let (w0, wn) = (p.w0, p.data.n);
+        let (a, e) = (w0 + p.data.interior.0, w0 + p.data.interior.1);
         let (quality, reasons) = quality::judge(&o.figures, &cfg.quality, cfg.band_s);
         if quality != Verdict::Failed {
             for k in 0..wn {
@@ -525,7 +530,7 @@ pub fn align(s: &Session, env: &Envelopes, blocks: &[Block], cfg: &AlignConfig) 
         block_of,
         usable,
         blocks: out_blocks,
-        lag_s: lag,
+        intact_offset_s: offset,
         direction_lag_s: pooled,
     })
 }
@@ -535,10 +540,8 @@ struct Pending {
     /// Index into the output blocks.
     slot: usize,
     data: BlockData,
-    /// The block proper on the feature grid: samples `start .. end`.
-    start: usize,
-    end: usize,
-    /// First sample of the window.
+    /// First sample of the window on the feature grid (the block proper is
+    /// `w0 + data.interior.0 .. w0 + data.interior.1`).
     w0: usize,
 }
 

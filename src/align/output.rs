@@ -204,7 +204,7 @@ pub fn lag_svg(a: &Aligned) -> Result<String> {
     let stride = n.div_ceil(4000).max(1);
     let pts: Vec<(f64, f64)> = (0..n)
         .step_by(stride)
-        .map(|i| (a.time_s[i], a.lag_s[i] * 1e3))
+        .map(|i| (a.time_s[i], a.lag_at(i) * 1e3))
         .collect();
     let (lo, hi) = pts
         .iter()

@@ -408,7 +408,8 @@ pub fn refine(
                         a.add(j + p, j + q, w * jac[p] * jac[q]);
                     }
                 }
-                if e_n == 0 {
+                // The penalty's scale needs the θ block alone.
+                if e_n == 0 || timing_only {
                     continue;
                 }
                 // The extra parameters this sample touches: every η, and the
